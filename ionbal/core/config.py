@@ -1,0 +1,88 @@
+"""All numba settings of ionbal, in one place.
+
+Every kernel in :mod:`ionbal.core` is compiled through :func:`jit` (serial
+scalar and array kernels) or :func:`pjit` (``prange`` drivers).  The settings
+are read once, at import, from environment variables:
+
+``IONBAL_DISABLE_JIT=1``
+    Run the kernels as plain Python (slow; for debugging and coverage).
+``IONBAL_NUMBA_CACHE=0``
+    Do not write or read numba's on-disk cache (``cache=True`` otherwise).
+``IONBAL_PARALLEL=0``
+    Compile the ``prange`` drivers serially.
+``IONBAL_FASTMATH=1``
+    Allow fast-math reassociation.  Off by default: the solver tests its
+    residuals against 1e-12 and relies on IEEE ``inf`` handling.
+
+The number of threads used by the parallel drivers is numba's
+(``NUMBA_NUM_THREADS``, or :func:`set_num_threads` at run time).
+"""
+
+from __future__ import annotations
+
+import os
+
+__all__ = [
+    "DISABLE_JIT",
+    "CACHE",
+    "PARALLEL",
+    "FASTMATH",
+    "jit",
+    "pjit",
+    "prange",
+    "set_num_threads",
+    "get_num_threads",
+]
+
+
+def _flag(name: str, default: bool) -> bool:
+    value = os.environ.get(name)
+    if value is None or value.strip() == "":
+        return default
+    return value.strip().lower() not in {"0", "false", "no", "off"}
+
+
+DISABLE_JIT: bool = _flag("IONBAL_DISABLE_JIT", False)
+CACHE: bool = _flag("IONBAL_NUMBA_CACHE", True)
+PARALLEL: bool = _flag("IONBAL_PARALLEL", True)
+FASTMATH: bool = _flag("IONBAL_FASTMATH", False)
+
+if DISABLE_JIT:
+
+    def jit(func=None, **_ignored):
+        """Identity decorator used when the JIT is switched off."""
+        if func is None:
+            return lambda f: f
+        return func
+
+    pjit = jit
+    prange = range
+
+    def set_num_threads(n: int) -> None:  # noqa: D103 - trivial
+        return None
+
+    def get_num_threads() -> int:  # noqa: D103 - trivial
+        return 1
+
+else:
+    import numba
+
+    prange = numba.prange
+    set_num_threads = numba.set_num_threads
+    get_num_threads = numba.get_num_threads
+
+    _COMMON = dict(nopython=True, nogil=True, cache=CACHE, fastmath=FASTMATH, error_model="numpy")
+
+    def jit(func=None, **overrides):
+        """``numba.jit`` with ionbal's settings (serial kernels)."""
+        options = {**_COMMON, **overrides}
+        if func is None:
+            return numba.jit(**options)
+        return numba.jit(**options)(func)
+
+    def pjit(func=None, **overrides):
+        """``numba.jit`` with ionbal's settings for ``prange`` drivers."""
+        options = {**_COMMON, "parallel": PARALLEL, **overrides}
+        if func is None:
+            return numba.jit(**options)
+        return numba.jit(**options)(func)

@@ -1,0 +1,247 @@
+"""Charge- and particle-conservation solve: scalar kernel plus ``prange`` drivers.
+
+Unknowns per point: ``x = ln n_e`` and the total nuclei density ``n_nuc``.
+With ``Qpos(x)`` and ``Qneg(x)`` the positive charge (ions) and negative
+charge (H-) per nucleus (see :func:`.saha.charge_moments`), charge
+conservation reads ``n_e + n_nuc Qneg = n_nuc Qpos``; the state variable
+closes the system:
+
+``MODE_GAS_PRESSURE`` (value = P_gas [dyn cm^-2])
+    ideal gas, ``P_gas = (n_nuc + n_e) k T``, so ``n_nuc = P/kT - n_e``.
+``MODE_NUCLEI_DENSITY`` (value = n_nuc [cm^-3])
+    hydrogen and mass density are converted to it by the caller.
+``MODE_ELECTRON_PRESSURE`` (value = P_e [dyn cm^-2])
+    ``x`` is known and ``n_nuc = n_e / (Qpos - Qneg)`` follows directly.
+
+For the first two the root of
+
+    h(x) = ln(n_nuc Qpos) - ln(n_e + n_nuc Qneg)
+
+is found; ``h`` is strictly decreasing (positive charge falls and negative
+charge rises with n_e), defined for every x, and the root is unique.  The
+iteration is Newton's method on ``x`` inside a bracket ``[lo, hi]`` that
+always holds the root: ``hi`` starts at the full-ionization bound
+``n_e <= P/kT * Qmax / (1 + Qmax)`` (``n_nuc Qmax`` for the density input),
+each evaluation moves one end, and a Newton step leaving the bracket is
+replaced by bisection.  Convergence: ``|n_e + n(H-) - sum q n_ion|`` at most
+``tol`` times the total positive charge ``sum q n_ion``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from . import status as st
+from .config import jit, pjit, prange
+from .constants import K_B
+from .saha import charge_moments, element_log_fractions, element_log_weights, log_weights, table_position
+
+MODE_GAS_PRESSURE = 0
+MODE_NUCLEI_DENSITY = 1
+MODE_ELECTRON_PRESSURE = 2
+
+#: default relative tolerance on charge conservation (w.r.t. total positive charge)
+TOL = 1e-13
+#: tolerance accepted when the Newton step has stagnated at round-off level
+TOL_STAGNATION = 1e-12
+MAX_ITER = 200
+
+
+@jit
+def solve_point(mode, T, value, x_guess, C, elem_w, elem_first, elem_n, elem_q0,
+                stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter):
+    """Solve one state.  ``C`` is a work array of length n_stages.
+
+    Returns ``(x, ln_n_nuc, iterations, status)``.
+    """
+    nan = np.nan
+    if not (T > 0.0 and T < np.inf and value > 0.0 and value < np.inf):
+        return nan, nan, 0, st.INVALID_INPUT
+    n_t = lnU.shape[1]
+    lgT = math.log10(T)
+    if lgT < lt0 - 1e-12 or lgT > lt0 + (n_t - 1) * dlt + 1e-12:
+        return nan, nan, 0, st.TEMPERATURE_OUT_OF_RANGE
+
+    log_weights(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)
+    kT = K_B * T
+
+    if mode == MODE_ELECTRON_PRESSURE:
+        x = math.log(value) - math.log(kT)
+        Qpos, Qneg, dQpos, dQneg = charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0)
+        Q = Qpos - Qneg
+        if not (Q > 0.0):
+            return x, nan, 1, st.NO_SOLUTION
+        return x, x - math.log(Q), 1, st.OK
+
+    if mode == MODE_GAS_PRESSURE:
+        lnN = math.log(value) - math.log(kT)
+        hi = lnN + math.log(q_max / (1.0 + q_max))
+    else:
+        lnN = math.log(value)
+        hi = lnN + math.log(q_max)
+    lo = -np.inf
+
+    x = x_guess
+    if not (x < hi):  # also catches NaN
+        x = hi
+    down = 1.0  # step used while the lower end of the bracket is unknown
+    best_res = np.inf
+    best_x = x
+    best_ln = nan
+    lnn = lnN
+    dlnn = 0.0
+    for it in range(1, max_iter + 1):
+        Qpos, Qneg, dQpos, dQneg = charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0)
+        valid = Qpos > 0.0
+        if mode == MODE_GAS_PRESSURE:
+            ex = math.exp(x - lnN)
+            if ex >= 1.0:
+                valid = False  # n_e >= P/kT: beyond the upper end
+            else:
+                lnn = lnN + math.log1p(-ex)
+                dlnn = -ex / (1.0 - ex)
+        if not valid:
+            hi = x
+            if lo > -np.inf:
+                x = 0.5 * (lo + hi)
+            else:
+                x = x - down
+                down *= 2.0
+            continue
+        # h(x) = ln(n_nuc Qpos) - ln(n_e + n_nuc Qneg): positive charge over negative charge
+        nn = math.exp(lnn)
+        ne = math.exp(x)
+        D = ne + nn * Qneg
+        h = lnn + math.log(Qpos) - math.log(D)
+        res = abs(math.expm1(-h))
+        if res < best_res:
+            best_res = res
+            best_x = x
+            best_ln = lnn
+        if res <= tol:
+            return x, lnn, it, st.OK
+        hp = dlnn + dQpos / Qpos - (ne + nn * (dlnn * Qneg + dQneg)) / D
+        if h > 0.0:
+            lo = x
+        else:
+            hi = x
+        xn = x - h / hp
+        if not (xn > lo and xn < hi):
+            if lo > -np.inf:
+                xn = 0.5 * (lo + hi)
+            else:
+                xn = x - down
+                down *= 2.0
+        if abs(xn - x) <= 4e-16 * max(1.0, abs(x)) or hi - lo <= 4e-16 * max(1.0, abs(x)):
+            # round-off floor reached
+            if best_res <= TOL_STAGNATION:
+                return best_x, best_ln, it, st.OK
+            return best_x, best_ln, it, st.MAX_ITERATIONS
+        x = xn
+    if best_res <= TOL_STAGNATION:
+        return best_x, best_ln, max_iter, st.OK
+    return best_x, best_ln, max_iter, st.MAX_ITERATIONS
+
+
+@pjit
+def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
+               stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
+               out_x, out_ln_nuc, out_iter, out_status):
+    """Solve every point of the 1-D arrays ``T``, ``value`` (and ``x_guess``, NaN = none).
+
+    Points are split into contiguous chunks, one work array per chunk, so the
+    ``prange`` body allocates nothing per point.  Within a chunk each point
+    without its own guess starts from its predecessor's solution when both
+    share the temperature (rows of a structured grid).
+    """
+    n = T.size
+    n_stage = stage_chi.size
+    n_chunks = min(n, 256)
+    for c in prange(n_chunks):
+        start = (c * n) // n_chunks
+        stop = ((c + 1) * n) // n_chunks
+        C = np.empty(n_stage)
+        prev_T = np.nan
+        prev_x = np.nan
+        prev_v = np.nan
+        for i in range(start, stop):
+            guess = x_guess[i]
+            if not (guess == guess) and T[i] == prev_T and prev_x == prev_x:
+                # same row: n_e scales roughly like sqrt(value) when hydrogen is
+                # partly ionized and like value when fully ionized
+                guess = prev_x + 0.5 * math.log(value[i] / prev_v) if mode != MODE_ELECTRON_PRESSURE else np.nan
+            x, lnn, it, code = solve_point(mode, T[i], value[i], guess, C, elem_w, elem_first, elem_n, elem_q0,
+                                           stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol,
+                                           max_iter)
+            out_x[i] = x
+            out_ln_nuc[i] = lnn
+            out_iter[i] = it
+            out_status[i] = code
+            if code == st.OK:
+                prev_T = T[i]
+                prev_x = x
+                prev_v = value[i]
+            else:
+                prev_T = np.nan
+
+
+@pjit
+def log_fractions_many(T, x, sel_elem, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const,
+                       lnU, lt0, dlt, out):
+    """ln of the stage fractions of the selected elements at every point.
+
+    ``sel_elem`` lists element indices; ``out`` has shape ``(n_points, n_stages)``
+    and only the columns of the selected elements are written (others are left
+    untouched).  Points with non-finite ``x`` get NaN.
+    """
+    n = T.size
+    n_stage = stage_chi.size
+    n_t = lnU.shape[1]
+    n_chunks = min(n, 256)
+    for c in prange(n_chunks):
+        start = (c * n) // n_chunks
+        stop = ((c + 1) * n) // n_chunks
+        C = np.empty(n_stage)
+        row = np.empty(n_stage)
+        i = 0
+        w = 0.0
+        for p in range(start, stop):
+            ok = T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf
+            if ok:
+                i, w = table_position(T[p], lt0, dlt, n_t)
+            for j in range(sel_elem.size):
+                e = sel_elem[j]
+                f = elem_first[e]
+                if ok:
+                    element_log_weights(e, T[p], i, w, elem_first, elem_n, stage_chi, stage_row,
+                                        stage_lnu_const, lnU, C)
+                    element_log_fractions(C, f, elem_n[e], x[p], row)
+                    for k in range(elem_n[e]):
+                        out[p, f + k] = row[f + k]
+                else:
+                    for k in range(elem_n[e]):
+                        out[p, f + k] = np.nan
+
+
+@pjit
+def charge_balance_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row, stage_lnu_const,
+                        lnU, lt0, dlt, out_q, out_qneg):
+    """One evaluation of every Saha factor and charge moment at given ``x = ln n_e``.
+
+    The arithmetic no solve can avoid (used as the benchmark floor and by the
+    tests to check conservation): positive and negative charge per nucleus.
+    """
+    n = T.size
+    n_stage = stage_chi.size
+    n_chunks = min(n, 256)
+    for c in prange(n_chunks):
+        start = (c * n) // n_chunks
+        stop = ((c + 1) * n) // n_chunks
+        C = np.empty(n_stage)
+        for p in range(start, stop):
+            log_weights(T[p], elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)
+            Qpos, Qneg, dQpos, dQneg = charge_moments(C, x[p], elem_w, elem_first, elem_n, elem_q0)
+            out_q[p] = Qpos
+            out_qneg[p] = Qneg
