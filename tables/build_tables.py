@@ -206,17 +206,16 @@ def build_ionization_energies(src: Path, out: Path) -> dict[tuple[int, int], dic
     if missing:
         raise SystemExit(f"ionization energies missing for {missing}")
     # ground weight from the nearest isoelectronic species where NIST gives no usable J
+    known = {k: r["g0"] for k, r in recs.items() if r["g0"] is not None}
     for (z, q), rec in recs.items():
         if rec["g0"] is not None:
             continue
         n_el = z - q
-        candidates = sorted(
-            (abs(z2 - z), z2) for (z2, q2), r2 in recs.items() if z2 - q2 == n_el and r2["g0"] is not None
-        )
+        candidates = sorted((abs(z2 - z), z2) for (z2, q2) in known if z2 - q2 == n_el)
         if not candidates:
             raise SystemExit(f"no ground weight for Z={z} charge={q}")
         z2 = candidates[0][1]
-        rec["g0"] = recs[(z2, z2 - n_el)]["g0"]
+        rec["g0"] = known[(z2, z2 - n_el)]
         rec["g0_source"] = f"isoelectronic {SYMBOLS[z2 - 1]} {to_roman(z2 - n_el + 1)}"
 
     keys = sorted(recs)
@@ -248,7 +247,8 @@ def build_ionization_energies(src: Path, out: Path) -> dict[tuple[int, int], dic
         "Rows for Z = 1..92, every stage; energies, uncertainties and flags copied unchanged.",
         "ground_weight = 2J+1 with J read from the NIST ground-level designation (e.g. 2S<1/2> -> 2, 5D4 -> 9, "
         "(1/2,1/2)0 -> 1). An LS designation whose J is impossible for the term (W XXXV '3P10') counts as absent.",
-        "Where NIST gives no usable J (91 highly charged lanthanide and heavy ions, W XXXV), ground_weight is "
+        "Where NIST gives no usable J (147 ions, mostly lanthanides V-XVII and heavy ions with a blank or "
+        "parity-only ground level; and W XXXV), ground_weight is "
         "taken from the isoelectronic species with the nearest Z that has one (column ground_weight_source).",
         "The bare nucleus (charge = Z) is not listed; its statistical weight is 1.",
         "Extra row charge = -1 (H-): ionization_energy = H- binding energy; ground level 1S0, weight 1.",
