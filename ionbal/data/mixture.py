@@ -230,11 +230,6 @@ class Mixture(Mapping):
         return MassFractions(x, y, float(w[zs > 2].sum()))
 
     # ------------------------------------------------------------------ derived mixtures
-    def _derived(self, values: dict[int, float], name: str, base: str, mh: float, am: float) -> "Mixture":
-        out = Mixture(values, name=name)
-        out._base, out._mh, out._am = base, mh, am
-        return out
-
     def scaled(self, metallicity: float = 0.0, alpha: float = 0.0) -> "Mixture":
         """A copy with [M/H] and [alpha/M] applied.
 
@@ -259,7 +254,7 @@ class Mixture(Mapping):
         name = f"{self._base} [M/H]={mh:+.2f}" + (f" [a/M]={am:+.2f}" if am != 0.0 else "")
         if mh == 0.0 and am == 0.0:
             name = self._base
-        return self._derived(values, name, self._base, mh, am)
+        return _rebuild(values, name, self._base, mh, am)
 
     def with_abundances(self, abundances: Mapping[str | int, float | None] | None = None, /,
                         **kwargs: float | None) -> "Mixture":
@@ -276,6 +271,8 @@ class Mixture(Mapping):
             if z in changes:
                 raise ValueError(f"element {SYMBOLS[z - 1]} is given more than once")
             changes[z] = value
+        if not changes:
+            return self
         values = dict(zip(self._z, self._a))
         for z, value in changes.items():
             if value is None:
@@ -284,8 +281,8 @@ class Mixture(Mapping):
                 values[z] = _check_value(z, value)
         if not values:
             raise ValueError("removing these elements would leave an empty mixture")
-        name = self._name if not changes else f"{self._name} (modified)"
-        return self._derived(values, name, name, 0.0, 0.0)
+        name = f"{self._name} (modified)"
+        return _rebuild(values, name, name, 0.0, 0.0)
 
     # ------------------------------------------------------------------ display
     def __repr__(self) -> str:
@@ -315,6 +312,7 @@ class Mixture(Mapping):
 
 
 def _rebuild(values: dict, name: str, base: str, mh: float, am: float) -> Mixture:
+    """A Mixture with its naming state (base name and accumulated [M/H], [a/M]); also used by pickle."""
     out = Mixture(values, name=name)
     out._base, out._mh, out._am = base, mh, am
     return out

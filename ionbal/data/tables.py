@@ -185,7 +185,7 @@ def ionization_energy(species: Any, unit: Any = None):
 
 # --------------------------------------------------------------------------- partition functions
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class PartitionGrid:
     """Tabulated ln U of the stages that have a table.
 
