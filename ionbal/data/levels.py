@@ -45,14 +45,17 @@ E field
       the highest known energy of its term block (the rows between two blank
       rows), flagged ``"estimated"``.  Unobserved fine-structure members are
       usually at the edge of the multiplet, so this is a rough estimate; it
-      is much closer to the reference calculation than dropping the levels,
-      which makes U of Pm II 20 % low at 9000 K.  If the block has no known
-      energy the row is skipped.
+      is much closer to the calculation of Barklem & Collet (2016) than
+      dropping the levels, which makes U of Pm II 20 % lower than theirs at
+      9000 K.  If the block has no known energy the row is skipped.
 
 Levels at or above the ionization limit are excluded (autoionizing levels and
-series limits).  No lowering of the ionization limit is applied for stages with
-level lists; only the infinite hydrogen series needs a cut-off (see
-:data:`H_N_MAX`).
+series limits).  The package tables take the limit from the NIST (2024)
+ionization energies, not from line 1 of the file.  (Barklem & Collet 2016 sum
+the autoionizing levels too, which makes their U of Ca I and Sr I about 3 %
+higher at 10,000 K.)  No lowering of the ionization limit is applied for
+stages with level lists; only the infinite hydrogen series needs a cut-off
+(see :data:`H_N_MAX`).
 
 Constants are CODATA 2018 (Tiesinga et al. 2021, Rev. Mod. Phys. 93, 025010).
 """
