@@ -415,7 +415,8 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
         bad = code == st.NO_SOLUTION
         if bad.any():
             where, _ = _first_bad(code.reshape(shape), bad.reshape(shape))
-            raise ValueError(f"no physical solution{where}: {st.STATUS_TABLE[st.NO_SOLUTION][1]} "
+            raise ValueError(f"no physical solution{where}: the mixture cannot supply this many free electrons "
+                             "at this temperature "
                              f"({var}={v_b.ravel()[np.argmax(bad)]:g}, T={Tf[np.argmax(bad)]:g} K); "
                              "pass errors='mask' to get a status code instead")
     bad_iter = code == st.MAX_ITERATIONS

@@ -80,5 +80,5 @@ def solve_reference(packed, T, gas_pressure=None, nuclei_density=None, electron_
     lo = hi - 1.0
     while h(lo) <= 0:
         lo -= 2 * (hi - lo)
-    x = brentq(h, lo, hi, xtol=1e-15, rtol=4e-16, maxiter=500)
+    x = brentq(h, lo, hi, xtol=1e-15, rtol=1e-15, maxiter=500)
     return np.exp(x), nuc(x)

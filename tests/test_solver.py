@@ -80,25 +80,33 @@ def test_kernel_matches_reference_gas_pressure(mixture):
 
 @pytest.mark.parametrize("var", ["hydrogen_density", "mass_density", "electron_pressure"])
 def test_kernel_matches_reference_other_inputs(var):
+    # states drawn from gas-pressure solves, so every input lies in the physical range
     rng, T = _random_states(10, seed=2)
+    P = 10 ** rng.uniform(-6, 12, T.size)
+    base = ionbal.solve(T, gas_pressure=P, mixture=AGSS09)
+    v = getattr(base, var)
     p = pack(AGSS09)
-    if var == "hydrogen_density":
-        v = 10 ** rng.uniform(0, 22, T.size)
-        nuc = v / p.hydrogen_weight
-    elif var == "mass_density":
-        v = 10 ** rng.uniform(-22, 0, T.size)
-        nuc = v / p.mean_mass
-    else:
-        v = 10 ** rng.uniform(-4, 6, T.size)
     r = ionbal.solve(T, mixture=AGSS09, **{var: v})
     assert r.converged.all()
     for i in range(T.size):
         if var == "electron_pressure":
             ne, nn = solve_reference(p, T[i], electron_pressure=v[i])
+        elif var == "hydrogen_density":
+            ne, nn = solve_reference(p, T[i], nuclei_density=v[i] / p.hydrogen_weight)
         else:
-            ne, nn = solve_reference(p, T[i], nuclei_density=nuc[i])
+            ne, nn = solve_reference(p, T[i], nuclei_density=v[i] / p.mean_mass)
         assert r.electron_density[i] == pytest.approx(ne, rel=1e-10)
         assert r.nuclei_density[i] == pytest.approx(nn, rel=1e-10)
+        assert r.electron_density[i] == pytest.approx(base.electron_density[i], rel=1e-10)
+
+
+def test_unattainable_electron_pressure_is_reported():
+    # at 1,900 K an electron pressure of ~500 dyn cm^-2 would need more positive ions than H- can
+    # balance: no ideal-gas state has it
+    with pytest.raises(ValueError, match="no physical solution"):
+        ionbal.solve(1886.9, electron_pressure=493.0)
+    r = ionbal.solve([1886.9, 5000.0], electron_pressure=[493.0, 1.0], errors="mask")
+    assert list(r.status) == [4, 0]
 
 
 # ----------------------------------------------------------------------------------------------

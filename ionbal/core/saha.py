@@ -69,99 +69,184 @@ def stage_lnu(s, i, w, stage_row, stage_lnu_const, lnU):
 
 
 @jit
-def element_log_weights(e, T, i, w, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, out):
-    """Fill ``out[first:first+n]`` with the cumulative log Saha weights of element ``e``."""
-    base = LN2 + LN_SAHA_CONST + 1.5 * math.log(T)
-    beta = 1.0 / (K_B_EV * T)
+def saha_base(T):
+    """``(base, beta)``: ln(2 (2 pi m_e k T / h^2)^{3/2}) and 1 / kT [eV^-1]."""
+    return LN2 + LN_SAHA_CONST + 1.5 * math.log(T), 1.0 / (K_B_EV * T)
+
+
+@jit
+def element_log_weights(e, base, beta, i, w, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU,
+                        out):
+    """Fill ``out[first:first+n]`` with the cumulative log Saha weights of element ``e``.
+
+    Tabulated partition functions occupy the leading stages of an element
+    (the packer guarantees it); past them every ln U is a constant, and the
+    recurrence runs without branches.
+    """
     f = elem_first[e]
+    n = elem_n[e]
     out[f] = 0.0
     lnu_prev = stage_lnu(f, i, w, stage_row, stage_lnu_const, lnU)
-    for k in range(1, elem_n[e]):
+    k = 1
+    while k < n and (stage_row[f + k] >= 0 or stage_row[f + k - 1] >= 0):
         s = f + k
         lnu_s = stage_lnu(s, i, w, stage_row, stage_lnu_const, lnU)
         out[s] = out[s - 1] + base + (lnu_s - lnu_prev) - stage_chi[s - 1] * beta
         lnu_prev = lnu_s
+        k += 1
+    acc = out[f + k - 1]
+    for s in range(f + k, f + n):
+        acc += base + (stage_lnu_const[s] - stage_lnu_const[s - 1]) - stage_chi[s - 1] * beta
+        out[s] = acc
 
 
 @jit
 def log_weights(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, out):
     """Cumulative log Saha weights ``C`` of every stage of every element at T."""
     i, w = table_position(T, lt0, dlt, lnU.shape[1])
+    base, beta = saha_base(T)
     for e in range(elem_first.size):
-        element_log_weights(e, T, i, w, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, out)
+        element_log_weights(e, base, beta, i, w, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const,
+                            lnU, out)
 
 
 @jit
-def element_moments(C, f, n, q0, x):
+def find_peak(C, f, n, x, kp0):
+    """Most populated stage position of one element at ``x``, and its log weight.
+
+    ``kp0 < 0``: scan every stage.  Otherwise climb from ``kp0``: the log
+    populations ``C_k - k x`` are concave in ``k`` up to small wiggles of the
+    partition-function ratios (ionization energies grow with charge), so the
+    climb ends at the maximum of the populated region.
+    """
+    if kp0 < 0:
+        m = -np.inf
+        kp = 0
+        for k in range(n):
+            t = C[f + k] - k * x
+            if t > m:
+                m = t
+                kp = k
+        return kp, m
+    kp = min(kp0, n - 1)
+    m = C[f + kp] - kp * x
+    while kp + 1 < n:
+        t = C[f + kp + 1] - (kp + 1) * x
+        if t > m:
+            kp += 1
+            m = t
+        else:
+            break
+    while kp > 0:
+        t = C[f + kp - 1] - (kp - 1) * x
+        if t > m:
+            kp -= 1
+            m = t
+        else:
+            break
+    return kp, m
+
+
+@jit
+def element_moments(C, f, n, q0, x, kp0):
     """Charge moments of one element at ``x = ln n_e``.
 
-    Returns ``(pos, var, neg, mean)``: the mean positive charge, the variance
-    of the charge, the mean negative charge (H-) and the mean charge.  The
-    positive and negative parts are summed separately so that neither is lost
-    to round-off when they nearly cancel (cool, dense gas where n(H-) rivals
-    the positive ions).
+    Returns ``(pos, dpos, neg, dneg, kp)``: the mean positive charge and the
+    mean negative charge (H-) of the element's nuclei, their derivatives with
+    respect to ``x``, and the most populated stage position (a starting point
+    for the next call, see :func:`find_peak`).  With ``f_k ~ exp(C_k - k x)``,
+    ``d f_k / dx = -(k - <k>) f_k``.  Only stages within ``CUT`` (in ln) of
+    the peak are summed, walking outwards from it; every sum is taken
+    relative to the peak, and positive and negative parts are kept apart, so
+    that nothing is lost to round-off when they nearly cancel (cool, dense gas
+    where n(H-) rivals the positive ions).
     """
-    m = -np.inf
-    kp = 0
-    for k in range(n):
-        t = C[f + k] - k * x
-        if t > m:
-            m = t
-            kp = k
+    kp, m = find_peak(C, f, n, x, kp0)
     s0 = 0.0
     s1 = 0.0
     s2 = 0.0
     sp = 0.0
+    spd = 0.0
     sn = 0.0
-    for k in range(n):
+    snd = 0.0
+    # walk down from the peak, then up from the stage above it
+    k = kp
+    while k >= 0:
         t = C[f + k] - k * x - m
-        if t > -CUT:
-            wt = math.exp(t)
-            d = k - kp
-            s0 += wt
-            s1 += wt * d
-            s2 += wt * d * d
-            q = q0 + k
+        if t < -CUT:
+            break
+        wt = math.exp(t)
+        d = k - kp
+        s0 += wt
+        s1 += wt * d
+        s2 += wt * d * d
+        q = q0 + k
+        if q0 < 0:
             if q > 0:
                 sp += q * wt
+                spd += q * d * wt
             elif q < 0:
                 sn -= q * wt
+                snd -= q * d * wt
+        k -= 1
+    k = kp + 1
+    while k < n:
+        t = C[f + k] - k * x - m
+        if t < -CUT:
+            break
+        wt = math.exp(t)
+        d = k - kp
+        s0 += wt
+        s1 += wt * d
+        s2 += wt * d * d
+        q = q0 + k
+        if q0 < 0:
+            if q > 0:
+                sp += q * wt
+                spd += q * d * wt
+            elif q < 0:
+                sn -= q * wt
+                snd -= q * d * wt
+        k += 1
     mean_d = s1 / s0
-    var = s2 / s0 - mean_d * mean_d
-    if var < 0.0:
-        var = 0.0
-    mean = (q0 + kp) + mean_d
     if q0 < 0:
         pos = sp / s0
+        dpos = -(spd - mean_d * sp) / s0
+        neg = sn / s0
+        dneg = -(snd - mean_d * sn) / s0
     else:
-        pos = mean
-    return pos, var, sn / s0, mean
+        var = s2 / s0 - mean_d * mean_d
+        if var < 0.0:
+            var = 0.0
+        pos = (q0 + kp) + mean_d
+        dpos = -var
+        neg = 0.0
+        dneg = 0.0
+    return pos, dpos, neg, dneg, kp
 
 
 @jit
-def charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0):
+def charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0, kpk):
     """Positive and negative charge per nucleus and their derivatives in ``x = ln n_e``.
 
     Returns ``(Qpos, Qneg, dQpos, dQneg)`` with ``Qpos = sum_e w_e <q>_+``
     (positive ions) and ``Qneg = sum_e w_e <q>_-`` (H-), so that charge
-    conservation reads ``n_e + n_nuc Qneg = n_nuc Qpos``.  The derivatives use
-    ``d<q>/dx = -Var(q)`` and, for the negative stage (the first stage of its
-    element), ``d ln f_first / dx = <k>``.
+    conservation reads ``n_e + n_nuc Qneg = n_nuc Qpos``.  ``kpk`` holds each
+    element's peak stage from the previous call (-1: unknown) and is updated.
     """
     Qpos = 0.0
     Qneg = 0.0
-    dQ = 0.0
+    dQpos = 0.0
     dQneg = 0.0
     for e in range(elem_w.size):
-        q0 = elem_q0[e]
-        pos, var, neg, mean = element_moments(C, elem_first[e], elem_n[e], q0, x)
+        pos, dpos, neg, dneg, kp = element_moments(C, elem_first[e], elem_n[e], elem_q0[e], x, kpk[e])
+        kpk[e] = kp
         we = elem_w[e]
         Qpos += we * pos
-        dQ -= we * var
-        if q0 < 0:
-            Qneg += we * neg
-            dQneg += we * neg * (mean - q0)
-    return Qpos, Qneg, dQ + dQneg, dQneg
+        dQpos += we * dpos
+        Qneg += we * neg
+        dQneg += we * dneg
+    return Qpos, Qneg, dQpos, dQneg
 
 
 @jit

@@ -36,7 +36,14 @@ import numpy as np
 from . import status as st
 from .config import jit, pjit, prange
 from .constants import K_B
-from .saha import charge_moments, element_log_fractions, element_log_weights, log_weights, table_position
+from .saha import (
+    charge_moments,
+    element_log_fractions,
+    element_log_weights,
+    log_weights,
+    saha_base,
+    table_position,
+)
 
 MODE_GAS_PRESSURE = 0
 MODE_NUCLEI_DENSITY = 1
@@ -50,9 +57,9 @@ MAX_ITER = 200
 
 
 @jit
-def solve_point(mode, T, value, x_guess, C, elem_w, elem_first, elem_n, elem_q0,
+def solve_point(mode, T, value, x_guess, C, kpk, elem_w, elem_first, elem_n, elem_q0,
                 stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter):
-    """Solve one state.  ``C`` is a work array of length n_stages.
+    """Solve one state.  ``C`` (n_stages) and ``kpk`` (int, n_elements) are work arrays.
 
     Returns ``(x, ln_n_nuc, iterations, status)``.
     """
@@ -66,10 +73,12 @@ def solve_point(mode, T, value, x_guess, C, elem_w, elem_first, elem_n, elem_q0,
 
     log_weights(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)
     kT = K_B * T
+    for e in range(kpk.size):
+        kpk[e] = -1  # first evaluation scans every stage: no state carried between points
 
     if mode == MODE_ELECTRON_PRESSURE:
         x = math.log(value) - math.log(kT)
-        Qpos, Qneg, dQpos, dQneg = charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0)
+        Qpos, Qneg, dQpos, dQneg = charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0, kpk)
         Q = Qpos - Qneg
         if not (Q > 0.0):
             return x, nan, 1, st.NO_SOLUTION
@@ -93,7 +102,7 @@ def solve_point(mode, T, value, x_guess, C, elem_w, elem_first, elem_n, elem_q0,
     lnn = lnN
     dlnn = 0.0
     for it in range(1, max_iter + 1):
-        Qpos, Qneg, dQpos, dQneg = charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0)
+        Qpos, Qneg, dQpos, dQneg = charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0, kpk)
         valid = Qpos > 0.0
         if mode == MODE_GAS_PRESSURE:
             ex = math.exp(x - lnN)
@@ -152,9 +161,9 @@ def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
     """Solve every point of the 1-D arrays ``T``, ``value`` (and ``x_guess``, NaN = none).
 
     Points are split into contiguous chunks, one work array per chunk, so the
-    ``prange`` body allocates nothing per point.  Within a chunk each point
-    without its own guess starts from its predecessor's solution when both
-    share the temperature (rows of a structured grid).
+    ``prange`` body allocates nothing per point.  Each point is solved on its
+    own (no state carried between points), so results do not depend on how
+    the points are split into calls, chunks or tiles.
     """
     n = T.size
     n_stage = stage_chi.size
@@ -163,28 +172,15 @@ def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
         start = (c * n) // n_chunks
         stop = ((c + 1) * n) // n_chunks
         C = np.empty(n_stage)
-        prev_T = np.nan
-        prev_x = np.nan
-        prev_v = np.nan
+        kpk = np.empty(elem_w.size, dtype=np.int64)
         for i in range(start, stop):
-            guess = x_guess[i]
-            if not (guess == guess) and T[i] == prev_T and prev_x == prev_x:
-                # same row: n_e scales roughly like sqrt(value) when hydrogen is
-                # partly ionized and like value when fully ionized
-                guess = prev_x + 0.5 * math.log(value[i] / prev_v) if mode != MODE_ELECTRON_PRESSURE else np.nan
-            x, lnn, it, code = solve_point(mode, T[i], value[i], guess, C, elem_w, elem_first, elem_n, elem_q0,
-                                           stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol,
-                                           max_iter)
+            x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, kpk, elem_w, elem_first, elem_n,
+                                           elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt,
+                                           q_max, tol, max_iter)
             out_x[i] = x
             out_ln_nuc[i] = lnn
             out_iter[i] = it
             out_status[i] = code
-            if code == st.OK:
-                prev_T = T[i]
-                prev_x = x
-                prev_v = value[i]
-            else:
-                prev_T = np.nan
 
 
 @pjit
@@ -207,15 +203,18 @@ def log_fractions_many(T, x, sel_elem, elem_first, elem_n, stage_chi, stage_row,
         row = np.empty(n_stage)
         i = 0
         w = 0.0
+        base = 0.0
+        beta = 0.0
         for p in range(start, stop):
             ok = T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf
             if ok:
                 i, w = table_position(T[p], lt0, dlt, n_t)
+                base, beta = saha_base(T[p])
             for j in range(sel_elem.size):
                 e = sel_elem[j]
                 f = elem_first[e]
                 if ok:
-                    element_log_weights(e, T[p], i, w, elem_first, elem_n, stage_chi, stage_row,
+                    element_log_weights(e, base, beta, i, w, elem_first, elem_n, stage_chi, stage_row,
                                         stage_lnu_const, lnU, C)
                     element_log_fractions(C, f, elem_n[e], x[p], row)
                     for k in range(elem_n[e]):
@@ -228,10 +227,12 @@ def log_fractions_many(T, x, sel_elem, elem_first, elem_n, stage_chi, stage_row,
 @pjit
 def charge_balance_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row, stage_lnu_const,
                         lnU, lt0, dlt, out_q, out_qneg):
-    """One evaluation of every Saha factor and charge moment at given ``x = ln n_e``.
+    """One evaluation of every Saha factor and every stage fraction at given ``x = ln n_e``.
 
-    The arithmetic no solve can avoid (used as the benchmark floor and by the
-    tests to check conservation): positive and negative charge per nucleus.
+    The arithmetic that no solve can avoid and every user of the fractions
+    needs: the cumulative Saha weights of all stages, the fraction of every
+    stage, and from them the positive and negative charge per nucleus.  Used
+    as the benchmark floor and by the tests to check conservation.
     """
     n = T.size
     n_stage = stage_chi.size
@@ -240,8 +241,20 @@ def charge_balance_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, st
         start = (c * n) // n_chunks
         stop = ((c + 1) * n) // n_chunks
         C = np.empty(n_stage)
+        lf = np.empty(n_stage)
         for p in range(start, stop):
             log_weights(T[p], elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)
-            Qpos, Qneg, dQpos, dQneg = charge_moments(C, x[p], elem_w, elem_first, elem_n, elem_q0)
-            out_q[p] = Qpos
-            out_qneg[p] = Qneg
+            qpos = 0.0
+            qneg = 0.0
+            for e in range(elem_w.size):
+                f = elem_first[e]
+                element_log_fractions(C, f, elem_n[e], x[p], lf)
+                for k in range(elem_n[e]):
+                    q = elem_q0[e] + k
+                    fr = math.exp(lf[f + k])
+                    if q > 0:
+                        qpos += elem_w[e] * q * fr
+                    elif q < 0:
+                        qneg -= elem_w[e] * q * fr
+            out_q[p] = qpos
+            out_qneg[p] = qneg
