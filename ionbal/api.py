@@ -105,6 +105,7 @@ class IonizationResult:
             "status": status,
         }
         self._logfrac_cache: dict[int, np.ndarray] = {}
+        self._validity = None
 
     # -- plain arrays ---------------------------------------------------------------------------
     def _get(self, key: str) -> np.ndarray:
@@ -179,6 +180,18 @@ class IonizationResult:
     def species(self) -> tuple:
         """Every species (ionization stage) in the solve, as canonical names."""
         return tuple(str(s) for s in self._packed.species)
+
+    @property
+    def validity(self):
+        """Where ideal-gas LTE Saha stops being trustworthy, per point.
+
+        See :func:`ionbal.validity.assess` for the flags and their thresholds.
+        """
+        if self._validity is None:
+            from .validity import assess
+
+            self._validity = assess(self)
+        return self._validity
 
     def stages(self, element) -> tuple:
         """Canonical names of the stages of one element, lowest charge first."""

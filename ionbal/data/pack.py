@@ -158,6 +158,7 @@ def pack(mixture: Mixture, overrides: tuple = ((), ()), h_minus: bool = True) ->
     w = np.asarray(mixture.number_fractions, dtype=np.float64)
 
     species: list[Species] = []
+    extra_rows: list[np.ndarray] = []
     chi: list[float] = []
     rows: list[int] = []
     lnu: list[float] = []
@@ -176,8 +177,10 @@ def pack(mixture: Mixture, overrides: tuple = ((), ()), h_minus: bool = True) ->
             species.append(sp)
             # partition function
             if sp in pf_over:
-                rows.append(-1)
-                lnu.append(math.log(pf_over[sp]))
+                # a fixed U becomes a constant row of the table, so tabulated stages stay contiguous
+                rows.append(grid.lnU.shape[0] + len(extra_rows))
+                extra_rows.append(np.full(grid.lnU.shape[1], math.log(pf_over[sp])))
+                lnu.append(0.0)
             elif q == -1:
                 rows.append(-1)
                 lnu.append(0.0)  # U(H-) = 1
@@ -200,6 +203,16 @@ def pack(mixture: Mixture, overrides: tuple = ((), ()), h_minus: bool = True) ->
                     raise ValueError(f"no ionization energy for {sp}")
                 chi.append(value)
         nst[e] = len(species) - first[e]
+        # the kernels expect tabulated partition functions in one leading block of an element's
+        # stages (after H-, whose U is a constant)
+        tab = [r >= 0 for r in rows[first[e]:]]
+        start = 1 if q0[e] < 0 else 0
+        n_tab = sum(tab)
+        if n_tab and not all(tab[start:start + n_tab]):
+            raise AssertionError(f"partition-function rows of Z={z} are not one leading block")
+    lnU = grid.lnU
+    if extra_rows:
+        lnU = np.vstack([lnU, np.array(extra_rows)])
 
     masses = np.array([atomic_mass(int(z)) for z in zs], dtype=np.float64)
     packed = PackedMixture(
@@ -213,7 +226,7 @@ def pack(mixture: Mixture, overrides: tuple = ((), ()), h_minus: bool = True) ->
         stage_chi=np.asarray(chi, dtype=np.float64),
         stage_row=np.asarray(rows, dtype=np.int64),
         stage_lnu_const=np.asarray(lnu, dtype=np.float64),
-        lnU=np.ascontiguousarray(grid.lnU, dtype=np.float64),
+        lnU=np.ascontiguousarray(lnU, dtype=np.float64),
         lt0=float(grid.log10_T_start),
         dlt=float(grid.dlog10_T),
         q_max=float(np.sum(w * zs)),
