@@ -8,10 +8,12 @@ element splits over its ionization stages.
 >>> import ionbal
 >>> r = ionbal.solve(6000.0, gas_pressure=1e5)          # doctest: +SKIP
 >>> r.electron_density, r.fraction("Fe II")              # doctest: +SKIP
+
+The solver (and with it numba) is imported on first use of :func:`solve`, so
+``import ionbal`` and the data helpers stay quick.
 """
 
 from ._version import __version__
-from .api import IonizationResult, solve
 from .data import Mixture, Species, ionization_energy, parse_species, partition_function
 
 __all__ = [
@@ -24,3 +26,24 @@ __all__ = [
     "partition_function",
     "ionization_energy",
 ]
+
+# name -> (module, attribute), imported on first access (PEP 562)
+_LAZY = {
+    "solve": (".api", "solve"),
+    "IonizationResult": (".api", "IonizationResult"),
+}
+
+
+def __getattr__(name):
+    if name in _LAZY:
+        import importlib
+
+        module, attr = _LAZY[name]
+        value = getattr(importlib.import_module(module, __name__), attr)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'ionbal' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_LAZY))
