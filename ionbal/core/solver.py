@@ -57,6 +57,28 @@ MAX_ITER = 200
 
 
 @jit
+def weak_ionization_guess(C, lnN, elem_w, elem_first, elem_q0):
+    """Starting ln n_e when every element is at most singly and weakly ionized.
+
+    Then ``n_e^2 = n_nuc sum_e w_e S_e`` with ``S_e`` the Saha factor of each
+    element's neutral stage, so ``x = (ln n_nuc + ln sum_e w_e S_e) / 2``;
+    where ionization is strong this overshoots and the caller clips it to
+    the full-ionization bound.
+    """
+    m = -np.inf
+    for e in range(elem_w.size):
+        f = elem_first[e] - elem_q0[e]  # the neutral stage (after H-)
+        t = math.log(elem_w[e]) + C[f + 1] - C[f]
+        if t > m:
+            m = t
+    s = 0.0
+    for e in range(elem_w.size):
+        f = elem_first[e] - elem_q0[e]
+        s += math.exp(math.log(elem_w[e]) + C[f + 1] - C[f] - m)
+    return 0.5 * (lnN + m + math.log(s))
+
+
+@jit
 def solve_point(mode, T, value, x_guess, C, kpk, elem_w, elem_first, elem_n, elem_q0,
                 stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter):
     """Solve one state.  ``C`` (n_stages) and ``kpk`` (int, n_elements) are work arrays.
@@ -93,7 +115,9 @@ def solve_point(mode, T, value, x_guess, C, kpk, elem_w, elem_first, elem_n, ele
     lo = -np.inf
 
     x = x_guess
-    if not (x < hi):  # also catches NaN
+    if not (x == x):
+        x = weak_ionization_guess(C, lnN, elem_w, elem_first, elem_q0)
+    if not (x < hi):
         x = hi
     down = 1.0  # step used while the lower end of the bracket is unknown
     best_res = np.inf
