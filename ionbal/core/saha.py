@@ -162,6 +162,13 @@ def element_moments(C, f, n, q0, x, kp0):
     where n(H-) rivals the positive ions).
     """
     kp, m = find_peak(C, f, n, x, kp0)
+    # the populated window: walk outwards from the peak until CUT below it
+    lo = kp
+    while lo > 0 and C[f + lo - 1] - (lo - 1) * x - m >= -CUT:
+        lo -= 1
+    hi = kp
+    while hi + 1 < n and C[f + hi + 1] - (hi + 1) * x - m >= -CUT:
+        hi += 1
     s0 = 0.0
     s1 = 0.0
     s2 = 0.0
@@ -169,45 +176,20 @@ def element_moments(C, f, n, q0, x, kp0):
     spd = 0.0
     sn = 0.0
     snd = 0.0
-    # walk down from the peak, then up from the stage above it
-    k = kp
-    while k >= 0:
-        t = C[f + k] - k * x - m
-        if t < -CUT:
-            break
-        wt = math.exp(t)
+    for k in range(lo, hi + 1):
+        wt = math.exp(C[f + k] - k * x - m)
         d = k - kp
         s0 += wt
         s1 += wt * d
         s2 += wt * d * d
-        q = q0 + k
         if q0 < 0:
+            q = q0 + k
             if q > 0:
                 sp += q * wt
                 spd += q * d * wt
             elif q < 0:
                 sn -= q * wt
                 snd -= q * d * wt
-        k -= 1
-    k = kp + 1
-    while k < n:
-        t = C[f + k] - k * x - m
-        if t < -CUT:
-            break
-        wt = math.exp(t)
-        d = k - kp
-        s0 += wt
-        s1 += wt * d
-        s2 += wt * d * d
-        q = q0 + k
-        if q0 < 0:
-            if q > 0:
-                sp += q * wt
-                spd += q * d * wt
-            elif q < 0:
-                sn -= q * wt
-                snd -= q * d * wt
-        k += 1
     mean_d = s1 / s0
     if q0 < 0:
         pos = sp / s0
