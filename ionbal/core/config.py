@@ -16,6 +16,11 @@ are read once, at import, from environment variables:
 
 The number of threads used by the parallel drivers is numba's
 (``NUMBA_NUM_THREADS``, or :func:`set_num_threads` at run time).
+
+numba's on-disk cache checks only the source file of each cached function,
+not the files of the kernels it inlines; :func:`_drop_stale_cache` therefore
+keeps a hash of all core sources and empties the core's cache when any of
+them changed.
 """
 
 from __future__ import annotations
@@ -66,6 +71,36 @@ if DISABLE_JIT:
 
 else:
     import numba
+
+    def _drop_stale_cache() -> None:
+        """Remove numba cache files of ionbal.core when any core source changed."""
+        import glob
+        import hashlib
+
+        here = os.path.dirname(os.path.abspath(__file__))
+        digest = hashlib.sha256()
+        for path in sorted(glob.glob(os.path.join(here, "*.py"))):
+            with open(path, "rb") as fh:
+                digest.update(fh.read())
+        stamp_dir = os.path.join(here, "__pycache__")
+        stamp = os.path.join(stamp_dir, "ionbal-core-sources.sha256")
+        try:
+            with open(stamp) as fh:
+                if fh.read().strip() == digest.hexdigest():
+                    return
+        except OSError:
+            pass
+        try:
+            for path in glob.glob(os.path.join(stamp_dir, "*.nb[ic]")):
+                os.remove(path)
+            os.makedirs(stamp_dir, exist_ok=True)
+            with open(stamp, "w") as fh:
+                fh.write(digest.hexdigest())
+        except OSError:  # read-only install: numba falls back to its own cache locations
+            pass
+
+    if CACHE:
+        _drop_stale_cache()
 
     prange = numba.prange
     set_num_threads = numba.set_num_threads
