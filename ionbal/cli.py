@@ -3,6 +3,9 @@
 Commands
 --------
 ``ionbal state``   the ionization balance of one state, printed as a summary.
+``ionbal grid``    a temperature x state grid (optionally x [M/H] x [alpha/M]) into an HDF5 file.
+``ionbal info``    a summary of a grid file.
+``ionbal column``  the ionization balance along a model-atmosphere depth structure.
 
 Every command has ``--help``.  Errors are reported as one line on stderr with
 a non-zero exit status; ``--debug`` shows the traceback instead.
@@ -138,6 +141,250 @@ def _cmd_state(args: argparse.Namespace) -> int:
 
 
 # ---------------------------------------------------------------------------------------------------
+# ionbal grid / info / column
+# ---------------------------------------------------------------------------------------------------
+
+def _note(args: argparse.Namespace):
+    """A printer of one-line notes on stderr (silent with --quiet)."""
+    def note(message: str) -> None:
+        if not getattr(args, "quiet", False):
+            print(f"ionbal: {message}", file=sys.stderr)
+    return note
+
+
+def _command_line(argv_name: str = "ionbal") -> str:
+    import shlex
+
+    return " ".join([argv_name] + [shlex.quote(a) for a in _CURRENT_ARGV])
+
+
+def _parse_overrides(items) -> dict:
+    over = {}
+    for item in items:
+        if "=" not in item:
+            raise CLIError(f"--abundance expects EL=A(X), e.g. He=11.0; got {item!r}")
+        el, val = item.split("=", 1)
+        try:
+            over[el.strip()] = float(val)
+        except ValueError:
+            raise CLIError(f"--abundance {item!r}: {val!r} is not a number") from None
+    return over
+
+
+def _composition_axis(text: str | None, name: str):
+    from .grid import Axis
+
+    if text is None:
+        return None
+    return Axis.parse(name, text)
+
+
+def grid_spec_from_args(args: argparse.Namespace):
+    """The :class:`~ionbal.grid.GridSpec` that the ``ionbal grid`` options describe."""
+    from .data.mixture import Mixture
+    from .grid import Axis, GridSpec
+
+    temperature = Axis.parse("temperature", args.temperature) if args.temperature else \
+        Axis.log("temperature", 2000.0, 50000.0, 301)
+    given = [(name, getattr(args, name)) for name, *_ in STATE_OPTIONS if getattr(args, name) is not None]
+    if len(given) > 1:
+        raise CLIError("give only one state axis: " + ", ".join("--" + n.replace("_", "-") for n, _ in given))
+    if given:
+        state = Axis.parse(given[0][0], given[0][1])
+    else:
+        state = Axis.log("gas_pressure", 1e-4, 1e8, 241)
+    m_axis = _composition_axis(args.metallicity_axis, "metallicity")
+    a_axis = _composition_axis(args.alpha_axis, "alpha")
+    if m_axis is None and a_axis is None:
+        mixture = mixture_from_args(args)
+        return GridSpec(temperature, state, mixture, species=args.species or "default",
+                        number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
+                        validity=not args.no_validity)
+    if m_axis is not None and args.metallicity:
+        raise CLIError("give [M/H] either as --metallicity or as --metallicity-axis, not both")
+    if a_axis is not None and args.alpha:
+        raise CLIError("give [alpha/M] either as --alpha or as --alpha-axis, not both")
+    metallicity = m_axis.values if m_axis is not None else (float(args.metallicity),)
+    alpha = a_axis.values if a_axis is not None else (float(args.alpha),)
+    base_args = argparse.Namespace(**{**vars(args), "metallicity": 0.0, "alpha": 0.0, "abundance": []})
+    base = mixture_from_args(base_args)
+    if not isinstance(base, Mixture):  # pragma: no cover - defensive
+        raise CLIError("could not build the mixture")
+    return GridSpec(temperature, state, base, metallicity=metallicity, alpha=alpha,
+                    overrides=_parse_overrides(args.abundance), species=args.species or "default",
+                    number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
+                        validity=not args.no_validity)
+
+
+def _cmd_grid(args: argparse.Namespace) -> int:
+    from .grid import parts_dir_for, run_grid
+
+    spec = grid_spec_from_args(args)
+    if args.scheduler and args.local_cluster:
+        raise CLIError("give either --scheduler ADDRESS or --local-cluster, not both")
+    if args.executor == "threads" and (args.scheduler or args.local_cluster):
+        raise CLIError("--executor threads runs locally; it cannot be combined with --scheduler/--local-cluster")
+    executor = "dask" if (args.scheduler or args.local_cluster) else args.executor
+    progress = False if args.quiet else None
+    try:
+        run = run_grid(spec, args.output, overwrite=args.overwrite, discard_parts=args.discard_parts,
+                       executor=executor, workers=args.workers, scheduler=args.scheduler,
+                       local_cluster=args.local_cluster, progress=progress, command=_command_line(),
+                       keep_parts=args.keep_parts, notify=_note(args))
+    except KeyboardInterrupt:
+        parts = parts_dir_for(args.output)
+        kept = f"; finished tiles are kept in {parts}, run the same command again to resume" \
+            if parts.is_dir() else ""
+        print(f"ionbal: interrupted{kept}", file=sys.stderr)
+        return 130
+    print(run.summary())
+    return 0
+
+
+def _cmd_info(args: argparse.Namespace) -> int:
+    from .io import open_grid
+
+    with open_grid(args.file) as g:
+        print(g.summary())
+        if args.species:
+            print("species: " + ", ".join(g.species))
+        if args.verify:
+            g.verify()
+            print("  checksums         every chunk of every dataset read back and verified")
+    return 0
+
+
+def _cmd_column(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from .column import default_output, read_model, solve_column, write_column
+
+    outputs = [Path(o) for o in (args.output or [default_output(args.model)])]
+    seen = set()
+    for out in outputs:
+        key = str(out.resolve()) if out.parent.exists() else str(out)
+        if key in seen:
+            raise CLIError(f"output {out} is given twice")
+        seen.add(key)
+        if out.exists() and not args.overwrite:
+            raise CLIError(f"output {out} already exists; pass --overwrite to replace it")
+        if Path(args.model).exists() and out.exists() and out.resolve() == Path(args.model).resolve():
+            raise CLIError(f"output {out} is the model file itself; choose another name")
+    mixture = mixture_from_args(args)
+    table = read_model(args.model)
+    result = solve_column(table, mixture=mixture, species=args.species or "default", state=args.state)
+    written = [write_column(result, out, overwrite=args.overwrite, command=_command_line()) for out in outputs]
+    n = len(result.table)
+    print(f"ionbal column: {args.model}: {n} depth points, state input {result.state_variable}, mixture "
+          f"{result.mixture_name}, {len(result.species)} species")
+    for path in written:
+        print(f"  wrote {path}")
+    if result.comparisons:
+        if not args.quiet:
+            print()
+            print("\n".join(result.deviation_lines()))
+            print()
+        for c in result.comparisons:
+            print("  " + c.summary())
+    return 0
+
+
+def _add_grid_command(sub) -> None:
+    from .grid import DEFAULT_OUTPUT, DEFAULT_TILE_SIZE
+
+    p = sub.add_parser(
+        "grid", help="compute a temperature x state grid into an HDF5 file (the main job)",
+        description="Compute the ionization balance over a grid of temperature and one more state variable "
+                    "(and optionally [M/H] and [alpha/M]) and store it as an HDF5 (netCDF-4 layout) file. "
+                    "Without arguments: AGSS09 mixture, T 2,000-50,000 K (301, log) x P_gas 1e-4-1e8 "
+                    f"dyn cm^-2 (241, log), written to {DEFAULT_OUTPUT}. An interrupted run resumes from "
+                    "OUTPUT.parts when the same command is run again.",
+        epilog="Axis syntax: START:STOP:NUM (log-spaced), START:STOP:NUM:linear, or V1,V2,... "
+               "Examples: ionbal grid -T 3000:12000:181 -P 1e-2:1e7:141 -o dwarfs.h5; "
+               "ionbal grid --metallicity-axis -2,-1,0 --alpha-axis 0,0.4 -o metal-poor.h5")
+    ax = p.add_argument_group("axes (cgs units)")
+    ax.add_argument("-T", "--temperature", default=None, metavar="AXIS",
+                    help="temperature axis [K] (default 2000:50000:301)")
+    for name, flag, short, helptext in STATE_OPTIONS:
+        extra = " (default 1e-4:1e8:241)" if name == "gas_pressure" else ""
+        ax.add_argument(short, flag, dest=name, default=None, metavar="AXIS",
+                        help=f"state axis: {helptext}{extra}")
+    add_mixture_options(p)
+    comp = p.add_argument_group("composition axes (one file, several mixtures)")
+    comp.add_argument("--metallicity-axis", default=None, metavar="LIST",
+                      help="[M/H] values, e.g. -2,-1,0 or -2:0:5 (linear); scales the abundance set")
+    comp.add_argument("--alpha-axis", default=None, metavar="LIST",
+                      help="[alpha/M] values, e.g. 0,0.2,0.4")
+    out = p.add_argument_group("output")
+    out.add_argument("-o", "--output", default=DEFAULT_OUTPUT, metavar="FILE",
+                     help=f"HDF5 file to write (default {DEFAULT_OUTPUT})")
+    out.add_argument("--species", default=None, metavar="LIST",
+                     help="species of the ion-fraction cube: 'default' (stages I-III of every element, and H-), "
+                          "'all' (every stage), or a list such as 'H-,H I,Fe I,Fe II'")
+    out.add_argument("--number-densities", action="store_true", help="also store number densities of the species")
+    out.add_argument("--float32", action="store_true",
+                     help="store the ion-fraction and number-density cubes in single precision")
+    out.add_argument("--no-validity", action="store_true",
+                     help="do not store the per-point validity flags (ionbal.validity); saves about a third of "
+                          "the time")
+    out.add_argument("--overwrite", action="store_true",
+                     help="replace an existing output file (it is kept until the new one is complete)")
+    run = p.add_argument_group("running")
+    run.add_argument("--tile-size", type=int, default=DEFAULT_TILE_SIZE, metavar="N",
+                     help=f"points per tile (default {DEFAULT_TILE_SIZE}); finished tiles survive interruptions")
+    run.add_argument("--workers", type=int, default=None, metavar="N",
+                     help="local: threads (default all cores); with --local-cluster: worker processes")
+    run.add_argument("--executor", choices=("serial", "threads"), default="serial",
+                     help="local execution: tiles one after another, each on all cores (serial, default), "
+                          "or a pool of --workers threads")
+    run.add_argument("--scheduler", default=None, metavar="ADDRESS",
+                     help="run the tiles on a Dask cluster, e.g. tcp://10.0.0.5:8786 (needs ionbal[dask] on "
+                          "every worker); this process alone writes the file")
+    run.add_argument("--local-cluster", action="store_true",
+                     help="start a local Dask cluster of --workers processes on 127.0.0.1")
+    run.add_argument("--discard-parts", action="store_true",
+                     help="start over if OUTPUT.parts holds the parts of a different grid (matching parts are "
+                          "always resumed)")
+    run.add_argument("--keep-parts", action="store_true", help=argparse.SUPPRESS)
+    run.add_argument("-q", "--quiet", action="store_true", help="no progress bar and no notes")
+    p.set_defaults(func=_cmd_grid)
+
+
+def _add_info_command(sub) -> None:
+    p = sub.add_parser("info", help="summarise a grid file",
+                       description="Summarise an ionbal grid file: axes and ranges, mixture, species, data "
+                                   "sources, completeness and status counts.")
+    p.add_argument("file", metavar="FILE", help="an ionbal grid file (HDF5)")
+    p.add_argument("--species", action="store_true", help="list every species of the cube")
+    p.add_argument("--verify", action="store_true",
+                   help="read every dataset back and verify its checksums (slower)")
+    p.set_defaults(func=_cmd_info)
+
+
+def _add_column_command(sub) -> None:
+    p = sub.add_parser(
+        "column", help="ionization balance along a model-atmosphere depth structure",
+        description="Read a depth structure (ECSV with units, or CSV / whitespace-separated text whose "
+                    "header names the columns, cgs) with temperature and one of gas_pressure, mass_density, "
+                    "hydrogen_density, electron_pressure; write n_e, P_e, mu, rho and the fractions and number "
+                    "densities of the species at every depth point. Other columns pass through unchanged. "
+                    "An input electron_density or electron_pressure column is compared with ionbal's.",
+        epilog="Example: ionbal column model.txt -o model.ionbal.ecsv -o model.ionbal.h5")
+    p.add_argument("model", metavar="MODEL", help="the depth structure (.ecsv, .csv or whitespace text)")
+    p.add_argument("-o", "--output", action="append", default=None, metavar="FILE",
+                   help="output file, .ecsv or .h5 (repeatable; default MODEL-STEM.ionbal.ecsv here)")
+    p.add_argument("--state", choices=tuple(n for n, *_ in STATE_OPTIONS), default=None,
+                   help="which state column to use (default: the first present of gas_pressure, mass_density, "
+                        "hydrogen_density, electron_pressure)")
+    p.add_argument("--species", default=None, metavar="LIST",
+                   help="'default' (stages I-III of every element, and H-), 'all', or a list such as 'Fe I,Fe II'")
+    add_mixture_options(p)
+    p.add_argument("--overwrite", action="store_true", help="replace existing output files")
+    p.add_argument("-q", "--quiet", action="store_true", help="print only the summary, not every depth point")
+    p.set_defaults(func=_cmd_column)
+
+
+# ---------------------------------------------------------------------------------------------------
 # parser and entry point
 # ---------------------------------------------------------------------------------------------------
 
@@ -174,14 +421,39 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-#: functions ``f(subparsers)`` that add further commands (grid, info, column, ...)
-_EXTENSIONS: list = []
+#: functions ``f(subparsers)`` that add further commands
+_EXTENSIONS: list = [_add_grid_command, _add_info_command, _add_column_command]
+#: the arguments of the running command (recorded in the files it writes)
+_CURRENT_ARGV: list = []
+
+
+#: long options whose value may start with "-" (lists of [M/H] values such as -2,-1,0)
+_SIGNED_LIST_OPTIONS = ("--metallicity-axis", "--alpha-axis")
+
+
+def _join_negative_lists(argv: list) -> list:
+    """Let ``--metallicity-axis -2,-1,0`` through argparse (which takes ``-2,-1,0`` for an option)."""
+    import re
+
+    out = []
+    i = 0
+    while i < len(argv):
+        a = argv[i]
+        if a in _SIGNED_LIST_OPTIONS and i + 1 < len(argv) and re.match(r"^-[0-9.]", str(argv[i + 1])):
+            out.append(f"{a}={argv[i + 1]}")
+            i += 2
+            continue
+        out.append(a)
+        i += 1
+    return out
 
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
     argv = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in argv
+    _CURRENT_ARGV[:] = [str(a) for a in argv]
+    argv = _join_negative_lists(argv)
     try:
         parser = build_parser()
         args = parser.parse_args(argv)
@@ -200,6 +472,14 @@ def main(argv: Sequence[str] | None = None) -> int:
             msg = f"ionbal: error: {msg}"
         print(msg.splitlines()[0] if msg else msg, file=sys.stderr)
         return 2
+    except Exception as exc:  # noqa: BLE001 - last resort: one line, never a traceback
+        if debug:
+            raise
+        lines = str(exc).strip().splitlines()
+        detail = f": {lines[0]}" if lines else ""
+        print(f"ionbal: error: {exc.__class__.__name__}{detail} (run with --debug for the traceback)",
+              file=sys.stderr)
+        return 1
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -1,0 +1,533 @@
+"""Model-atmosphere columns: the ionization balance at every depth point of a given structure.
+
+Input: a depth structure as
+
+* ECSV (with units; known columns are converted to cgs), or
+* CSV or whitespace-separated text whose first non-comment line names the
+  columns (``#`` starts a comment line), values in cgs.
+
+It needs ``temperature`` [K] and one of ``gas_pressure`` [dyn cm^-2],
+``mass_density`` [g cm^-3], ``hydrogen_density`` [cm^-3] or
+``electron_pressure`` [dyn cm^-2] (the first present in this order is used
+unless one is chosen).  Column names are matched without regard to case.
+Every other column (depth, optical depth, ...) is passed through unchanged.
+
+Output, per depth point: electron density and pressure, gas pressure, mass
+density, hydrogen and nuclei densities, mean molecular weight, solver status,
+and the fraction and number density of each requested species (by default
+stages I-III of every element plus H-), as ECSV (with units) and/or HDF5.
+
+Comparison: when the input also has an ``electron_density`` or
+``electron_pressure`` column (a published model's values) that is not the
+state input, ionbal's value is compared with it at every depth point
+(deviation in percent, ``100 (ionbal / input - 1)``, and in dex,
+``log10(ionbal / input)``), with a summary of the median and the worst
+absolute deviation.  Input columns whose names collide with ionbal's outputs
+are kept under the name ``input_<name>``.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .grid import STATE_AXES, resolve_species
+
+__all__ = [
+    "read_model",
+    "solve_column",
+    "ColumnResult",
+    "Comparison",
+    "write_column",
+    "species_column_name",
+    "MODEL_UNITS",
+]
+
+#: cgs units of the columns ionbal knows
+MODEL_UNITS: dict[str, str] = {
+    "temperature": "K",
+    "gas_pressure": "dyn / cm2",
+    "mass_density": "g / cm3",
+    "hydrogen_density": "1 / cm3",
+    "electron_pressure": "dyn / cm2",
+    "electron_density": "1 / cm3",
+}
+_OUTPUTS = (
+    ("electron_density", "1 / cm3"),
+    ("electron_pressure", "dyn / cm2"),
+    ("gas_pressure", "dyn / cm2"),
+    ("mass_density", "g / cm3"),
+    ("hydrogen_density", "1 / cm3"),
+    ("nuclei_density", "1 / cm3"),
+    ("mean_molecular_weight", ""),
+)
+_COMPARED = ("electron_density", "electron_pressure")
+MAX_MODEL_BYTES = 512 * 1024 * 1024
+
+
+def _canon(name: str) -> str:
+    return name.strip().lower().replace("-", "_").replace(" ", "_")
+
+
+def species_column_name(prefix: str, species: str) -> str:
+    """Column name of a species quantity: ``fraction_Fe_II``, ``number_density_H_minus``."""
+    return f"{prefix}_{species.replace('-', '_minus').replace(' ', '_')}"
+
+
+# ---------------------------------------------------------------------------------------------------
+# reading
+# ---------------------------------------------------------------------------------------------------
+
+def _read_text(path: Path) -> str:
+    if not path.exists():
+        raise FileNotFoundError(f"model file {path} does not exist")
+    if path.is_dir():
+        raise IsADirectoryError(f"model file {path} is a directory")
+    size = path.stat().st_size
+    if size > MAX_MODEL_BYTES:
+        raise ValueError(f"model file {path} is {size / 1e6:.0f} MB; a depth structure should be far smaller")
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise OSError(f"cannot read model file {path}: {exc.strerror or exc}") from None
+    if b"\x00" in raw:
+        raise ValueError(f"model file {path} is not a text file (it contains NUL bytes)")
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise ValueError(f"model file {path} is not UTF-8 text (byte {exc.start})") from None
+
+
+def read_model(path) -> "Table":  # noqa: F821
+    """Read a depth structure into an astropy Table.
+
+    Known columns (temperature, the state variables, electron_density) get
+    cgs units: converted from the file's units for ECSV, assumed cgs for plain
+    text.  Other columns are kept as they are.  Row order is kept.
+
+    Raises
+    ------
+    FileNotFoundError, ValueError
+        With a message naming the file, line and column of the problem.
+    """
+    from astropy.table import Table
+
+    path = Path(path)
+    text = _read_text(path)
+    first = next((ln for ln in text.splitlines() if ln.strip()), "")
+    if not first:
+        raise ValueError(f"model file {path} is empty")
+    if first.lstrip().startswith("# %ECSV"):
+        t = _read_ecsv(path, text)
+    else:
+        t = _read_plain(path, text)
+    if len(t) == 0:
+        raise ValueError(f"model file {path} has a header but no data rows")
+    t.meta["ionbal_model_file"] = str(path)
+    return t
+
+
+def _read_ecsv(path: Path, text: str):
+    import astropy.units as u
+    from astropy.table import Table
+
+    try:
+        t = Table.read(text, format="ascii.ecsv")
+    except Exception as exc:  # noqa: BLE001 - astropy raises many kinds; report one line
+        msg = str(exc).strip().splitlines()
+        raise ValueError(f"cannot read ECSV model file {path}: {msg[0] if msg else type(exc).__name__}") from None
+    t = Table(t, masked=False, copy=False) if not t.has_masked_columns else t
+    seen = {}
+    for name in t.colnames:
+        c = _canon(name)
+        if c in seen:
+            raise ValueError(f"model file {path}: columns {seen[c]!r} and {name!r} have the same name")
+        seen[c] = name
+    for name in list(t.colnames):
+        c = _canon(name)
+        if c not in MODEL_UNITS:
+            continue
+        col = t[name]
+        if getattr(col, "mask", None) is not None and np.any(col.mask):
+            i = int(np.flatnonzero(col.mask)[0])
+            raise ValueError(f"model file {path}: column {name} has a missing value at data row {i + 1}")
+        if col.dtype.kind not in "fiu":
+            raise ValueError(f"model file {path}: column {name} must be numeric, it has type {col.dtype}")
+        target = u.Unit(MODEL_UNITS[c])
+        values = np.asarray(col, dtype=np.float64)
+        if col.unit is not None and col.unit != u.dimensionless_unscaled:
+            try:
+                values = (values * col.unit).to_value(target)
+            except u.UnitConversionError:
+                raise ValueError(f"model file {path}: column {name} has unit '{col.unit}', which does not "
+                                 f"convert to {target}") from None
+        t[name] = values
+        t[name].unit = target
+    return t
+
+
+def _split(line: str, comma: bool) -> list[str]:
+    if comma:
+        return [f.strip().strip('"').strip("'") for f in line.split(",")]
+    return line.split()
+
+
+def _read_plain(path: Path, text: str):
+    import astropy.units as u
+    from astropy.table import Table
+
+    lines = [(i + 1, ln) for i, ln in enumerate(text.splitlines())]
+    body = [(n, ln) for n, ln in lines if ln.strip() and not ln.lstrip().startswith("#")]
+    if not body:
+        raise ValueError(f"model file {path} has no header line naming its columns")
+    hline, header = body[0]
+    comma = "," in header
+    names = _split(header, comma)
+    if any(not n for n in names):
+        raise ValueError(f"model file {path}, line {hline}: empty column name in the header")
+    seen = {}
+    for n in names:
+        c = _canon(n)
+        if c in seen:
+            raise ValueError(f"model file {path}, line {hline}: column {n!r} appears twice in the header")
+        seen[c] = n
+    try:
+        [float(n) for n in names]
+        all_numbers = True
+    except ValueError:
+        all_numbers = False
+    if all_numbers:
+        raise ValueError(f"model file {path}, line {hline}: the first line holds numbers, not column names; "
+                         "the header must name the columns (e.g. 'depth temperature gas_pressure')")
+    rows = []
+    line_numbers = []
+    for n, ln in body[1:]:
+        fields = _split(ln, comma)
+        if len(fields) != len(names):
+            raise ValueError(f"model file {path}, line {n}: {len(fields)} values for {len(names)} columns "
+                             f"({', '.join(names)})")
+        rows.append(fields)
+        line_numbers.append(n)
+    if not rows:
+        raise ValueError(f"model file {path} has a header but no data rows")
+    cols = list(zip(*rows))
+    t = Table()
+    for name, values in zip(names, cols):
+        c = _canon(name)
+        try:
+            arr = np.array([float(v) for v in values], dtype=np.float64)
+        except ValueError:
+            if c in MODEL_UNITS:
+                for v, n in zip(values, line_numbers):
+                    try:
+                        float(v)
+                    except ValueError:
+                        raise ValueError(f"model file {path}, line {n}: {name} value {v!r} is not a "
+                                         "number") from None
+            arr = np.array(values, dtype=str)
+        t[name] = arr
+        if c in MODEL_UNITS:
+            t[name].unit = u.Unit(MODEL_UNITS[c])
+    t.meta["line_numbers"] = line_numbers
+    return t
+
+
+# ---------------------------------------------------------------------------------------------------
+# solving
+# ---------------------------------------------------------------------------------------------------
+
+@dataclass
+class Comparison:
+    """ionbal versus an input column, per depth point and summarised."""
+
+    quantity: str
+    input_values: np.ndarray
+    ionbal_values: np.ndarray
+    percent: np.ndarray  # NaN where the input value is not usable
+    dex: np.ndarray
+    skipped: int
+
+    def _worst(self, arr):
+        ok = np.isfinite(arr)
+        if not ok.any():
+            return float("nan"), -1
+        i = int(np.nanargmax(np.where(ok, np.abs(arr), -np.inf)))
+        return float(arr[i]), i
+
+    @property
+    def median_percent(self) -> float:
+        v = np.abs(self.percent[np.isfinite(self.percent)])
+        return float(np.median(v)) if v.size else float("nan")
+
+    @property
+    def median_dex(self) -> float:
+        v = np.abs(self.dex[np.isfinite(self.dex)])
+        return float(np.median(v)) if v.size else float("nan")
+
+    @property
+    def worst_percent(self) -> tuple[float, int]:
+        """Signed deviation of largest size, and its depth index."""
+        return self._worst(self.percent)
+
+    @property
+    def worst_dex(self) -> tuple[float, int]:
+        return self._worst(self.dex)
+
+    def summary(self) -> str:
+        wp, ip = self.worst_percent
+        wd, idx = self.worst_dex
+        n = int(np.isfinite(self.percent).sum())
+        text = (f"{self.quantity}: ionbal vs input at {n} depth points: median |deviation| "
+                f"{self.median_percent:.3g} % ({self.median_dex:.3g} dex); worst {wp:+.3g} % ({wd:+.3g} dex) "
+                f"at depth point {ip}")
+        if self.skipped:
+            text += f"; {self.skipped} point(s) without a usable input value skipped"
+        return text
+
+
+@dataclass
+class ColumnResult:
+    """The output table of a column run and its comparisons."""
+
+    table: "Table"  # noqa: F821
+    state_variable: str
+    species: tuple
+    fractions: np.ndarray
+    number_densities: np.ndarray
+    comparisons: list = field(default_factory=list)
+    mixture_name: str = ""
+
+    def deviation_lines(self) -> list[str]:
+        """Per-depth-point comparison lines (empty without comparisons)."""
+        if not self.comparisons:
+            return []
+        head = f"{'depth':>5} {'T [K]':>9}"
+        for c in self.comparisons:
+            short = "n_e" if c.quantity == "electron_density" else "P_e"
+            head += f"  {short + ' input':>12} {short + ' ionbal':>12} {'dev %':>8} {'dex':>8}"
+        lines = [head]
+        T = np.asarray(self.table[self._tname()], dtype=np.float64)
+        for i in range(len(T)):
+            s = f"{i:>5} {T[i]:>9.1f}"
+            for c in self.comparisons:
+                s += (f"  {c.input_values[i]:>12.4e} {c.ionbal_values[i]:>12.4e} "
+                      f"{c.percent[i]:>+8.3f} {c.dex[i]:>+8.4f}")
+            lines.append(s)
+        return lines
+
+    def _tname(self) -> str:
+        return next(n for n in self.table.colnames if _canon(n) == "temperature")
+
+
+def _find(table, canon: str) -> str | None:
+    for n in table.colnames:
+        if _canon(n) == canon:
+            return n
+    return None
+
+
+def _where(table, i: int) -> str:
+    lines = table.meta.get("line_numbers")
+    if lines and i < len(lines):
+        return f"depth point {i} (line {lines[i]})"
+    return f"depth point {i} (data row {i + 1})"
+
+
+def solve_column(table, *, mixture=None, species="default", state: str | None = None) -> ColumnResult:
+    """Solve the ionization balance at every depth point of a model table.
+
+    Parameters
+    ----------
+    table : astropy Table
+        From :func:`read_model` (cgs units on the known columns).
+    mixture : Mixture, optional
+        Default AGSS09.
+    species : "default", "all" or list of names
+        Species whose fractions and number densities are written.
+    state : str, optional
+        Which state column to use; default the first present of
+        gas_pressure, mass_density, hydrogen_density, electron_pressure.
+    """
+    from astropy.table import Table
+
+    from .api import default_mixture, solve
+
+    mix = default_mixture() if mixture is None else mixture
+    tname = _find(table, "temperature")
+    if tname is None:
+        raise ValueError(f"the model has no temperature column; it has {', '.join(table.colnames)}; "
+                         f"name the columns temperature and one of {', '.join(STATE_AXES)}")
+    present = [s for s in STATE_AXES if _find(table, s) is not None]
+    if state is not None:
+        if state not in STATE_AXES:
+            raise ValueError(f"state column must be one of {', '.join(STATE_AXES)}, got {state!r}")
+        if state not in present:
+            raise ValueError(f"the model has no {state} column; it has {', '.join(table.colnames)}")
+        sv = state
+    elif present:
+        sv = present[0]
+    else:
+        raise ValueError(f"the model needs one of the columns {', '.join(STATE_AXES)} besides temperature; "
+                         f"it has {', '.join(table.colnames)}")
+    sname = _find(table, sv)
+    T = np.asarray(table[tname], dtype=np.float64)
+    X = np.asarray(table[sname], dtype=np.float64)
+    for name, arr in ((tname, T), (sname, X)):
+        bad = ~(np.isfinite(arr) & (arr > 0))
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0])
+            raise ValueError(f"{name} at {_where(table, i)} is {arr[i]!r}; it must be a finite positive number")
+    from .data.tables import partition_grid
+
+    g = partition_grid()
+    out = (T < g.T_min * (1 - 1e-12)) | (T > g.T_max * (1 + 1e-12))
+    if out.any():
+        i = int(np.flatnonzero(out)[0])
+        raise ValueError(f"temperature {T[i]:g} K at {_where(table, i)} is outside the partition-function "
+                         f"tables ({g.T_min:.4g}-{g.T_max:.4g} K)")
+    sp_names = resolve_species(mix, species)
+    r = solve(T, mixture=mix, errors="mask", **{sv: X})
+    status = np.asarray(r.status)
+    if (status != 0).any():
+        i = int(np.flatnonzero(status != 0)[0])
+        raise ValueError(f"no converged solution at {_where(table, i)} (T={T[i]:g} K, {sv}={X[i]:g}): "
+                         f"{r.message[i]}")
+
+    outputs = {name: unit for name, unit in _OUTPUTS if name != sv}
+    res = Table(meta={k: v for k, v in table.meta.items() if k != "line_numbers"})
+    for name in table.colnames:
+        c = _canon(name)
+        new = name
+        if c in outputs or c in ("status", "iterations", "validity") or c.startswith(("fraction_", "number_density_")):
+            new = f"input_{name}"
+        res[new] = table[name]
+    for name, unit in outputs.items():
+        res[name] = np.asarray(getattr(r, name), dtype=np.float64)
+        if unit:
+            res[name].unit = unit
+    res["status"] = status.astype(np.int8)
+    res["iterations"] = np.asarray(r.iterations, dtype=np.int32)
+    with contextlib.suppress(ImportError, AttributeError):
+        from .validity import bitmask
+
+        res["validity"] = np.asarray(bitmask(r.validity), dtype=np.uint8)
+        res["validity"].description = "validity flags of ideal-gas LTE Saha (bitmask, see ionbal.validity)"
+
+    comparisons = []
+    for q in _COMPARED:
+        iname = _find(table, q)
+        if iname is None or q == sv:
+            continue
+        ref = np.asarray(table[iname], dtype=np.float64)
+        ours = np.asarray(getattr(r, q), dtype=np.float64)
+        ok = np.isfinite(ref) & (ref > 0)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            pct = np.where(ok, 100.0 * (ours / ref - 1.0), np.nan)
+            dex = np.where(ok, np.log10(ours / ref), np.nan)
+        cmp_ = Comparison(q, ref, ours, pct, dex, int((~ok).sum()))
+        comparisons.append(cmp_)
+        res[f"{q}_deviation_percent"] = pct
+        res[f"{q}_deviation_dex"] = dex
+
+    nsp = len(sp_names)
+    frac = np.empty((nsp, len(T)))
+    dens = np.empty((nsp, len(T)))
+    with np.errstate(under="ignore"):
+        for k, name in enumerate(sp_names):
+            frac[k] = r.fraction(name)
+            dens[k] = r.number_density(name)
+    for k, name in enumerate(sp_names):
+        res[species_column_name("fraction", name)] = frac[k]
+    for k, name in enumerate(sp_names):
+        res[species_column_name("number_density", name)] = dens[k]
+        res[species_column_name("number_density", name)].unit = "1 / cm3"
+    res.meta["ionbal_state_variable"] = sv
+    res.meta["ionbal_mixture"] = mix.name
+    res.meta["ionbal_species"] = list(sp_names)
+    res.meta["ionbal_abundances"] = {el: float(a) for el, a in zip(mix.elements, mix.log_eps)}
+    return ColumnResult(res, sv, sp_names, frac, dens, comparisons, mix.name)
+
+
+# ---------------------------------------------------------------------------------------------------
+# writing
+# ---------------------------------------------------------------------------------------------------
+
+def _format_of(path: Path) -> str:
+    ext = path.suffix.lower()
+    if ext in (".ecsv", ".txt", ".csv"):
+        if ext != ".ecsv":
+            raise ValueError(f"output {path}: column results are written as ECSV (.ecsv) or HDF5 (.h5, .hdf5, "
+                             ".nc)")
+        return "ecsv"
+    if ext in (".h5", ".hdf5", ".nc", ".he5"):
+        return "hdf5"
+    raise ValueError(f"output {path}: unknown extension {ext or '(none)'}; use .ecsv or .h5")
+
+
+def write_column(result: ColumnResult, path, *, overwrite: bool = False, command: str | None = None) -> Path:
+    """Write a column result as ECSV (``.ecsv``) or HDF5 (``.h5``/``.hdf5``/``.nc``), atomically.
+
+    An existing file is replaced only with ``overwrite`` and only once the new
+    one is complete.
+    """
+    from . import __version__
+    from .io import data_sources, write_table_file
+
+    path = Path(path)
+    fmt = _format_of(path)
+    if path.exists() and path.is_dir():
+        raise IsADirectoryError(f"output {path} is a directory")
+    if path.exists() and not overwrite:
+        raise FileExistsError(f"output {path} already exists; pass --overwrite to replace it")
+    parent = path.parent if str(path.parent) else Path(".")
+    if not parent.is_dir():
+        raise FileNotFoundError(f"cannot write {path}: directory {parent} does not exist")
+    meta_extra = {"ionbal_version": __version__, "ionbal_command": command or "ionbal.column.write_column"}
+    if fmt == "ecsv":
+        t = result.table.copy(copy_data=False)
+        t.meta.update(meta_extra)
+        t.meta["ionbal_data_sources"] = {k: v.get("title", "") for k, v in data_sources().items()}
+        for c in result.comparisons:
+            t.meta[f"ionbal_comparison_{c.quantity}"] = c.summary()
+        tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
+        try:
+            t.write(tmp, format="ascii.ecsv", overwrite=True)
+            with open(tmp, "rb+") as fh:
+                os.fsync(fh.fileno())
+            os.replace(tmp, path)
+        except BaseException:
+            with contextlib.suppress(OSError):
+                tmp.unlink()
+            raise
+        return path
+    cols = {}
+    sp_cols = {species_column_name("fraction", s) for s in result.species} | \
+              {species_column_name("number_density", s) for s in result.species}
+    for name in result.table.colnames:
+        if name in sp_cols:
+            continue
+        col = result.table[name]
+        unit = None if col.unit is None else col.unit.to_string().replace("1 / cm3", "cm-3") \
+            .replace("dyn / cm2", "dyn cm-2").replace("g / cm3", "g cm-3")
+        cols[name] = (np.asarray(col), unit, None)
+    attrs = {
+        "title": "ionbal LTE ionization balance of a model-atmosphere column",
+        "history": f"{command or 'ionbal.column.write_column'} (ionbal {__version__})",
+        "state_variable": result.state_variable,
+        "mixture_name": result.mixture_name,
+    }
+    for c in result.comparisons:
+        attrs[f"comparison_{c.quantity}"] = c.summary()
+    write_table_file(path, cols, species=result.species,
+                     cubes={"ion_fraction": result.fractions, "number_density": result.number_densities},
+                     attrs=attrs, overwrite=overwrite)
+    return path
+
+
+def default_output(model_path) -> Path:
+    """``<model stem>.ionbal.ecsv`` in the current directory."""
+    return Path(Path(model_path).stem + ".ionbal.ecsv")
