@@ -103,7 +103,7 @@ def _tol(el):
     return 1e-12 * ionbal.parse_species((el, 0)).Z
 
 
-@settings(max_examples=60, **SETTINGS)
+@settings(max_examples=40, **SETTINGS)
 @given(mixture=mixture_strategy, logpe=hs.floats(-8.0, 10.0),
        logT=hs.lists(hs.floats(3.0, 6.0), min_size=2, max_size=12))
 def test_mean_charge_grows_with_temperature_at_fixed_electron_pressure(mixture, logpe, logT):
@@ -116,7 +116,7 @@ def test_mean_charge_grows_with_temperature_at_fixed_electron_pressure(mixture, 
         assert np.all(np.diff(q) >= -_tol(el)), (el, T[ok], q)
 
 
-@settings(max_examples=60, **SETTINGS)
+@settings(max_examples=40, **SETTINGS)
 @given(mixture=mixture_strategy, logT=hs.floats(3.0, 6.0),
        logpe=hs.lists(hs.floats(-8.0, 10.0), min_size=2, max_size=12))
 def test_mean_charge_falls_with_electron_pressure_at_fixed_temperature(mixture, logT, logpe):
@@ -138,10 +138,13 @@ def test_hydrogen_with_h_minus_is_monotonic_on_a_fine_grid():
         ok = r.converged
         q = r.mean_charge("H")[ok]
         assert np.all(np.diff(q) >= -1e-12), pe
-        # and below ~3,000 K the mean charge is negative where H- outnumbers H II (dense cool gas)
-    r = ionbal.solve(2000.0, electron_pressure=1.0, mixture=MIXTURES["AGSS09"], errors="mask")
-    if bool(r.converged):
-        assert float(r.number_density("H-")) > 0
+    # the H- part matters: at P_e = 1 dyn cm^-2 hydrogen's mean charge is negative at 3,000-4,000 K,
+    # where H- outnumbers H II (the electrons come from the metals; common practice for cool
+    # atmospheres), and it rises through zero towards 5,000 K
+    r = ionbal.solve([3000.0, 4000.0, 5000.0], electron_pressure=1.0, mixture=MIXTURES["AGSS09"])
+    q = r.mean_charge("H")
+    assert q[0] < 0 and q[1] < 0 < q[2]
+    assert np.all(r.number_density("H-")[:2] > r.number_density("H II")[:2])
 
 
 # ----------------------------------------------------------------------------------------------
@@ -166,8 +169,8 @@ def _concat(parts, axis=-1):
     return {k: np.concatenate([p[k] for p in parts], axis=axis) for k in keys}
 
 
-@settings(max_examples=30, **SETTINGS)
-@given(seed=hs.integers(0, 2**32 - 1), n=hs.integers(1, 400), data=hs.data(),
+@settings(max_examples=20, **SETTINGS)
+@given(seed=hs.integers(0, 2**32 - 1), n=hs.integers(1, 300), data=hs.data(),
        var=hs.sampled_from(_problems.STATE_VARIABLES),
        mixture_name=hs.sampled_from(("AGSS09", "pure hydrogen", "[M/H]=-5")))
 def test_splitting_into_pieces_changes_no_number(seed, n, data, var, mixture_name):
