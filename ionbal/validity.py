@@ -20,7 +20,7 @@ Parameters and thresholds (cgs; e elementary charge, k Boltzmann constant)
     equation assumes, when ``exp(ψ) = n_e λ_e³ / 2 << 1`` (ψ the degeneracy
     parameter; Clayton 1968, *Principles of Stellar Evolution and
     Nucleosynthesis*, ch. 2; Kippenhahn, Weigert & Weiss 2012, *Stellar
-    Structure and Evolution*, 2nd ed., sect. 15).  The first Fermi-Dirac
+    Structure and Evolution*, 2nd ed., ch. 15; chapter numbers from memory).  The first Fermi-Dirac
     correction to the electron chemical potential is
     ``Δμ / kT ≈ n_e λ_e³ / 2^{5/2}`` (common practice: inverting the series
     ``n_e λ_e³ / 2 = z - z² / 2^{3/2} + ...`` of the Fermi-Dirac integral), and
@@ -34,7 +34,7 @@ Parameters and thresholds (cgs; e elementary charge, k Boltzmann constant)
     mixture each ion's sphere holds q electrons, ``a_q = (3 q / 4π n_e)^{1/3}``,
     so ``Γ_q = q^{5/3} Γ_e`` with ``Γ_e = e² / (a_e k T)`` and
     ``a_e = (3 / 4π n_e)^{1/3}`` (the linear-mixing form, e.g. Chabrier &
-    Potekhin 1998, Phys. Rev. E 58, 4941).  ionbal reports
+    Potekhin 1998, Phys. Rev. E 58, 4941; reference from memory).  ionbal reports
     ``Γ = Γ_e <q^{5/3}>``, the average over positive ions by number.  The
     plasma is strongly coupled, and ideal-gas thermodynamics fails, for
     ``Γ ≳ 1`` (Ichimaru 1982): threshold :data:`COUPLING_LIMIT` = 1.
