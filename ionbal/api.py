@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import warnings
+from numbers import Integral, Real
 from typing import Mapping
 
 import numpy as np
@@ -42,7 +43,14 @@ def default_mixture() -> Mixture:
 
 
 def _strip_unit(value, unit: str, name: str) -> np.ndarray:
-    """Convert ``value`` (number, array or Quantity) to a float64 array in ``unit``."""
+    """Convert ``value`` (number, array or Quantity) to a float64 array in ``unit``.
+
+    Only real numbers are accepted: strings, bytes, booleans, complex numbers,
+    dates, ``None`` and masked arrays are refused with a message naming
+    ``name`` (and the first offending index of an array).
+    """
+    if value is None:
+        raise ValueError(f"{name} is None; give a number or an array of numbers")
     if hasattr(value, "unit") and hasattr(value, "to_value"):
         import astropy.units as u
 
@@ -50,11 +58,36 @@ def _strip_unit(value, unit: str, name: str) -> np.ndarray:
             value = value.to_value(u.Unit(unit))
         except u.UnitConversionError:
             raise ValueError(f"{name} has unit '{value.unit}', which does not convert to '{unit}'") from None
+    if isinstance(value, np.ma.MaskedArray):
+        raise ValueError(f"{name} is a masked array; fill or drop the masked values first "
+                         "(or pass NaN with errors='mask')")
+    if isinstance(value, (str, bytes)):
+        raise ValueError(f"{name} must be a number or an array of numbers, got the string {value!r}")
     try:
-        arr = np.asarray(value, dtype=np.float64)
+        raw = np.asarray(value)
     except (TypeError, ValueError):
         raise ValueError(f"{name} must be a number or an array of numbers, got {type(value).__name__}") from None
-    return arr
+    if raw.dtype == object:
+        flat = raw.ravel()
+        for k, item in enumerate(flat):
+            if item is None or isinstance(item, (str, bytes, bool, np.bool_)) or not isinstance(item, Real):
+                where = "" if raw.ndim == 0 else f" at index {_unravel(k, raw.shape)}"
+                what = "None" if item is None else f"{type(item).__name__} {item!r}"
+                raise ValueError(f"{name} must hold numbers only; found {what}{where}")
+    elif raw.dtype.kind not in "iuf":
+        kinds = {"b": "booleans", "c": "complex numbers", "U": "strings", "S": "bytes", "M": "dates",
+                 "m": "time differences", "V": "raw records"}
+        raise ValueError(f"{name} must be real numbers; got {kinds.get(raw.dtype.kind, raw.dtype.name)} "
+                         f"(dtype {raw.dtype})")
+    try:
+        return raw.astype(np.float64)
+    except (TypeError, ValueError):
+        raise ValueError(f"{name} must be a number or an array of numbers") from None
+
+
+def _unravel(k: int, shape: tuple):
+    idx = np.unravel_index(k, shape)
+    return int(idx[0]) if len(idx) == 1 else tuple(int(i) for i in idx)
 
 
 def _first_bad(arr: np.ndarray, bad: np.ndarray):
@@ -92,18 +125,20 @@ class IonizationResult:
             ne = np.where(good, np.exp(x), np.nan)
             nn = np.where(good, np.exp(ln_nuclei), np.nan)
         kT = K_B * temperature
-        self._flat = {
-            "temperature": temperature,
-            "electron_density": ne,
-            "nuclei_density": nn,
-            "electron_pressure": ne * kT,
-            "gas_pressure": (nn + ne) * kT,
-            "hydrogen_density": nn * packed.hydrogen_weight,
-            "mass_density": nn * packed.mean_mass,
-            "mean_molecular_weight": nn * packed.mean_mass / ((nn + ne) * AMU),
-            "iterations": iterations,
-            "status": status,
-        }
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            flat = {
+                "temperature": temperature,
+                "electron_density": ne,
+                "nuclei_density": nn,
+                "electron_pressure": ne * kT,
+                "gas_pressure": (nn + ne) * kT,
+                "hydrogen_density": nn * packed.hydrogen_weight,
+                "mass_density": nn * packed.mean_mass,
+                "mean_molecular_weight": packed.mean_mass / ((1.0 + ne / nn) * AMU),
+                "iterations": iterations,
+                "status": status,
+            }
+        self._flat = flat
         self._logfrac_cache: dict[int, np.ndarray] = {}
         self._validity = None
 
@@ -364,10 +399,17 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
         mixture = default_mixture()
     if not isinstance(mixture, Mixture):
         raise TypeError(f"mixture must be an ionbal.Mixture, got {type(mixture).__name__}")
-    if not (isinstance(tol, (int, float)) and 0 < tol < 1e-3):
+    if isinstance(tol, (bool, np.bool_)) or not isinstance(tol, Real) or not (0 < tol < 1e-3):
         raise ValueError(f"tol must be a number in (0, 1e-3), got {tol!r}")
-    if not (isinstance(max_iterations, (int, np.integer)) and max_iterations >= 1):
-        raise ValueError(f"max_iterations must be a positive integer, got {max_iterations!r}")
+    if (isinstance(max_iterations, (bool, np.bool_)) or not isinstance(max_iterations, Integral)
+            or not 1 <= max_iterations <= 1_000_000):
+        raise ValueError(f"max_iterations must be an integer from 1 to 1,000,000, got {max_iterations!r}")
+    if not isinstance(h_minus, (bool, np.bool_)):
+        raise ValueError(f"h_minus must be True or False, got {h_minus!r}")
+    for arg, over in (("partition_functions", partition_functions), ("ionization_energies", ionization_energies)):
+        if over is not None and not isinstance(over, Mapping):
+            raise ValueError(f"{arg} must be a mapping of species to values, e.g. {{'H I': 2.0}}; "
+                             f"got {type(over).__name__}")
 
     packed = pack(mixture, freeze_overrides(partition_functions, ionization_energies), bool(h_minus))
 
@@ -376,11 +418,25 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
     guess = None
     if initial_electron_density is not None:
         guess = _strip_unit(initial_electron_density, "1 / cm3", "initial_electron_density")
+        bad = ~(np.isnan(guess) | ((guess > 0) & np.isfinite(guess)))
+        if bad.any():
+            where, v = _first_bad(guess, bad)
+            raise ValueError(f"initial_electron_density must be positive and finite (NaN = no guess); "
+                             f"got {v!r}{where}")
     try:
-        arrays = np.broadcast_arrays(T, value, *(() if guess is None else (guess,)))
+        arrays = np.broadcast_arrays(T, value)
     except ValueError:
         raise ValueError(f"temperature (shape {T.shape}) and {var} (shape {value.shape}) do not broadcast "
                          "together") from None
+    if guess is not None:
+        try:
+            arrays = np.broadcast_arrays(*arrays, guess)
+        except ValueError:
+            raise ValueError(f"initial_electron_density (shape {guess.shape}) does not broadcast to the "
+                             f"shape of the states {arrays[0].shape}") from None
+        if arrays[0].shape != np.broadcast_shapes(T.shape, value.shape):
+            raise ValueError(f"initial_electron_density (shape {guess.shape}) does not broadcast to the "
+                             f"shape of the states {np.broadcast_shapes(T.shape, value.shape)}")
     shape = arrays[0].shape
     T_b, v_b = arrays[0], arrays[1]
     if T_b.size == 0:
@@ -407,8 +463,19 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
                              "use gas_pressure or mass_density")
         mode, kval = MODE_NUCLEI_DENSITY, v_b / wh
     else:
-        mode, kval = MODE_NUCLEI_DENSITY, v_b / packed.mean_mass
+        with np.errstate(over="ignore"):
+            mode, kval = MODE_NUCLEI_DENSITY, v_b / packed.mean_mass
 
+    # the density scale the kernel works with must be representable
+    with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+        scale = kval / (K_B * T_b) if mode != MODE_NUCLEI_DENSITY else kval
+        overflow = np.isfinite(T_b) & (T_b > 0) & np.isfinite(v_b) & (v_b > 0) & ~(scale < 1e305)
+    if overflow.any():
+        if errors == "raise":
+            where, v = _first_bad(v_b, overflow)
+            raise ValueError(f"{var} = {v:g}{where} gives a density beyond the range of double precision "
+                             "(above 1e305 cm^-3)")
+        kval = np.where(overflow, np.nan, kval)  # status: invalid input
     Tf = np.ascontiguousarray(T_b, dtype=np.float64).ravel()
     vf = np.ascontiguousarray(kval, dtype=np.float64).ravel()
     if guess is None:
@@ -425,6 +492,12 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
                x, lnn, it, code)
 
     if errors == "raise":
+        bad = (code != st.OK) & (code != st.NO_SOLUTION) & (code != st.MAX_ITERATIONS)
+        if bad.any():
+            where, _ = _first_bad(code.reshape(shape), bad.reshape(shape))
+            k = int(np.argmax(bad))
+            raise ValueError(f"state{where} (T={Tf[k]:g} K, {var}={v_b.ravel()[k]:g}) cannot be solved: "
+                             f"{st.STATUS_TABLE[int(code[k])][1]}")
         bad = code == st.NO_SOLUTION
         if bad.any():
             where, _ = _first_bad(code.reshape(shape), bad.reshape(shape))

@@ -25,7 +25,7 @@ from hypothesis import strategies as hs
 import ionbal
 from ionbal import _problems
 
-from test_sweep import _WINDOW, LIMIT, conservation
+from test_sweep import LIMIT, conservation
 
 MIXTURES = _problems.mixtures()
 SETTINGS = dict(deadline=None, derandomize=True, database=None,
@@ -58,7 +58,7 @@ def _all_equal_bits(a, b) -> bool:
 # Conservation
 # ----------------------------------------------------------------------------------------------
 
-@pytest.mark.xfail(strict=True, reason=_WINDOW)
+
 @settings(max_examples=60, **SETTINGS, **NO_SHRINK)
 @given(mixture=mixture_strategy, seed=hs.integers(0, 2**32 - 1))
 def test_conservation_random_states_and_mixtures(mixture, seed):
@@ -70,7 +70,7 @@ def test_conservation_random_states_and_mixtures(mixture, seed):
     assert res["charge"] <= LIMIT and res["nuclei"] <= LIMIT, res
 
 
-@pytest.mark.xfail(strict=True, reason=_WINDOW)
+
 @settings(max_examples=40, **SETTINGS, **NO_SHRINK)
 @given(mixture=mixture_strategy, seed=hs.integers(0, 2**32 - 1),
        var=hs.sampled_from(("mass_density", "hydrogen_density", "electron_pressure")))

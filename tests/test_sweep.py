@@ -40,25 +40,10 @@ LIMIT = 1e-12
 MIXTURES = _problems.mixtures()
 CASES = [(m, v) for m in MIXTURES for v in _problems.STATE_VARIABLES]
 
-# Known solver defect (reported; remove these marks with the fix): element_moments() in core/saha.py
-# sums only the stages within CUT = 46 (in ln) of each element's most populated stage.  Where a gas
-# is almost neutral the dropped stages are what carries the charge: pure hydrogen and pure helium at
-# low T lose every ion (Qpos = 0: no convergence, or "no physical solution" for the electron
-# pressure), and in metal-poor, metal-rich and hydrogen-free gases the charge residual rises to
-# 1e-12 .. 3e-7 (terms of ~1e-20 of one element against a total charge per nucleus of ~1e-12).
-_WINDOW = ("ion stages more than 46 e-folds below an element's peak are dropped from the charge sums "
-           "(core/saha.py element_moments); in nearly neutral gas they carry the charge")
-KNOWN_FAST = {("pure hydrogen", v) for v in _problems.STATE_VARIABLES} \
-    | {("pure helium", v) for v in ("gas_pressure", "mass_density", "electron_pressure")} \
-    | {("[M/H]=-5", v) for v in _problems.STATE_VARIABLES} \
-    | {("hydrogen-free He-C-O", v) for v in ("gas_pressure", "mass_density", "electron_pressure")}
-KNOWN_SLOW = KNOWN_FAST | {("[M/H]=+1", v) for v in _problems.STATE_VARIABLES}
 
 
-def _params(known):
-    return [pytest.param(m, v, id=f"{m}-{v}",
-                         marks=[pytest.mark.xfail(strict=True, reason=_WINDOW)] if (m, v) in known else [])
-            for m, v in CASES]
+def _params():
+    return [pytest.param(m, v, id=f"{m}-{v}") for m, v in CASES]
 
 
 @pjit
@@ -201,13 +186,13 @@ def _sweep(mixture_name: str, state_variable: str, n: int, seed: int) -> None:
     assert res["fraction_sum"] <= LIMIT, res
 
 
-@pytest.mark.parametrize("mixture_name, state_variable", _params(KNOWN_FAST))
+@pytest.mark.parametrize("mixture_name, state_variable", _params())
 def test_sweep_fast(mixture_name, state_variable):
     _sweep(mixture_name, state_variable, N_FAST, seed=11)
 
 
 @pytest.mark.slow
-@pytest.mark.parametrize("mixture_name, state_variable", _params(KNOWN_SLOW))
+@pytest.mark.parametrize("mixture_name, state_variable", _params())
 def test_sweep_full(mixture_name, state_variable):
     _sweep(mixture_name, state_variable, N_SLOW, seed=2024)
 

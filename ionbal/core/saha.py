@@ -156,7 +156,9 @@ def element_moments(C, f, n, q0, x, kp0):
     respect to ``x``, and the most populated stage position (a starting point
     for the next call, see :func:`find_peak`).  With ``f_k ~ exp(C_k - k x)``,
     ``d f_k / dx = -(k - <k>) f_k``.  Only stages within ``CUT`` (in ln) of
-    the peak are summed, walking outwards from it; every sum is taken
+    the peak are summed, walking outwards from it -- except that a neutral
+    element keeps its ions down to ``CUT`` below the first ion, since they
+    carry its charge however rare they are; every sum is taken
     relative to the peak, and positive and negative parts are kept apart, so
     that nothing is lost to round-off when they nearly cancel (cool, dense gas
     where n(H-) rivals the positive ions).
@@ -169,6 +171,18 @@ def element_moments(C, f, n, q0, x, kp0):
     hi = kp
     while hi + 1 < n and C[f + hi + 1] - (hi + 1) * x - m >= -CUT:
         hi += 1
+    if q0 < 0:
+        # hydrogen (H-, H I, H II): in cool gas both charged stages may lie far below the
+        # neutral peak and still carry the charge that matters; sum every stage
+        lo = 0
+        hi = n - 1
+    elif kp == 0 and n > 1:
+        # neutral peak: the element's charge is carried by the ions, however far below the
+        # peak they lie; keep them down to CUT below the first ion (k = 1)
+        t1 = C[f + 1] - x - m
+        hi = 1
+        while hi + 1 < n and C[f + hi + 1] - (hi + 1) * x - m >= t1 - CUT:
+            hi += 1
     s0 = 0.0
     s1 = 0.0
     s2 = 0.0
