@@ -54,6 +54,8 @@ TOL = 1e-13
 #: tolerance accepted when the Newton step has stagnated at round-off level
 TOL_STAGNATION = 1e-12
 MAX_ITER = 200
+#: |h| below which the last Newton step is taken without evaluating its residual (quadratic convergence)
+FINAL_STEP = 1e-8
 
 
 @jit
@@ -120,6 +122,7 @@ def solve_point(mode, T, value, x_guess, C, kpk, elem_w, elem_first, elem_n, ele
     if not (x < hi):
         x = hi
     down = 1.0  # step used while the lower end of the bracket is unknown
+    final = min(FINAL_STEP, 0.03 * math.sqrt(tol))
     best_res = np.inf
     best_x = x
     best_ln = nan
@@ -161,6 +164,12 @@ def solve_point(mode, T, value, x_guess, C, kpk, elem_w, elem_first, elem_n, ele
         else:
             hi = x
         xn = x - h / hp
+        if abs(h) <= final and xn > lo and xn < hi:
+            # Newton converges quadratically: from |h| <= 1e-8 the step leaves a residual of order
+            # h^2 (~1e-16), so take it without another evaluation
+            if mode == MODE_GAS_PRESSURE:
+                lnn = lnN + math.log1p(-math.exp(xn - lnN))
+            return xn, lnn, it, st.OK
         if not (xn > lo and xn < hi):
             if lo > -np.inf:
                 xn = 0.5 * (lo + hi)
