@@ -14,17 +14,21 @@
 
 Both drivers split the points into the same contiguous chunks as the solver's
 ``prange`` drivers, one work array per chunk.
+
+The kernels here are compiled with ionbal's numba settings but never cached on
+disk: they inline core kernels, and numba's cache would not notice a change
+in the core.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from ionbal.core.config import jit, pjit, prange
+from ionbal.core.config import pjit, prange
 from ionbal.core.saha import charge_moments, log_weights
 from ionbal.core.solver import charge_balance_many
 
-__all__ = ["full_floor", "lean_floor", "weights_only", "moments_only", "moments_repeated"]
+__all__ = ["full_floor", "lean_floor", "weights_only", "moments_repeated"]
 
 
 def full_floor(T, x, packed, out_q=None, out_qneg=None):
@@ -36,7 +40,7 @@ def full_floor(T, x, packed, out_q=None, out_qneg=None):
     return out_q, out_qneg
 
 
-@pjit
+@pjit(cache=False)
 def _lean_floor_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row, stage_lnu_const,
                      lnU, lt0, dlt, out_q, out_qneg):
     n = T.size
@@ -68,7 +72,7 @@ def lean_floor(T, x, packed, out_q=None, out_qneg=None):
 # pieces, for profiling (benchmarks/profile_solve.py)
 # ------------------------------------------------------------------------------------------------
 
-@pjit
+@pjit(cache=False)
 def _weights_many(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, out):
     n = T.size
     n_chunks = min(n, 256)
@@ -92,7 +96,7 @@ def weights_only(T, packed):
     return out
 
 
-@pjit
+@pjit(cache=False)
 def _moments_many(T, x, repeats, warm, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row,
                   stage_lnu_const, lnU, lt0, dlt, out_q):
     """Saha weights once per point, then ``repeats`` moment evaluations at ``x`` (timed by difference).
@@ -129,6 +133,3 @@ def moments_repeated(T, x, packed, repeats, warm):
     _moments_many(T, x, int(repeats), bool(warm), *packed.kernel_arrays(), out)
     return out
 
-
-def moments_only(*args, **kwargs):  # pragma: no cover - alias kept for readability in profile output
-    return moments_repeated(*args, **kwargs)
