@@ -182,22 +182,22 @@ def _composition_axis(text: str | None, name: str):
 def grid_spec_from_args(args: argparse.Namespace):
     """The :class:`~ionbal.grid.GridSpec` that the ``ionbal grid`` options describe."""
     from .data.mixture import Mixture
-    from .grid import Axis, GridSpec
+    from .grid import DEFAULT_STATE_AXIS, DEFAULT_TEMPERATURE_AXIS, Axis, GridSpec
 
-    temperature = Axis.parse("temperature", args.temperature) if args.temperature else \
-        Axis.log("temperature", 2000.0, 50000.0, 301)
+    temperature = Axis.parse("temperature", DEFAULT_TEMPERATURE_AXIS if args.temperature is None
+                             else args.temperature)
     given = [(name, getattr(args, name)) for name, *_ in STATE_OPTIONS if getattr(args, name) is not None]
     if len(given) > 1:
         raise CLIError("give only one state axis: " + ", ".join("--" + n.replace("_", "-") for n, _ in given))
     if given:
         state = Axis.parse(given[0][0], given[0][1])
     else:
-        state = Axis.log("gas_pressure", 1e-4, 1e8, 241)
+        state = Axis.parse("gas_pressure", DEFAULT_STATE_AXIS)
     m_axis = _composition_axis(args.metallicity_axis, "metallicity")
     a_axis = _composition_axis(args.alpha_axis, "alpha")
     if m_axis is None and a_axis is None:
         mixture = mixture_from_args(args)
-        return GridSpec(temperature, state, mixture, species=args.species or "default",
+        return GridSpec(temperature, state, mixture, species=_species_arg(args),
                         number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
                         validity=not args.no_validity)
     if m_axis is not None and args.metallicity:
@@ -211,9 +211,17 @@ def grid_spec_from_args(args: argparse.Namespace):
     if not isinstance(base, Mixture):  # pragma: no cover - defensive
         raise CLIError("could not build the mixture")
     return GridSpec(temperature, state, base, metallicity=metallicity, alpha=alpha,
-                    overrides=_parse_overrides(args.abundance), species=args.species or "default",
+                    overrides=_parse_overrides(args.abundance), species=_species_arg(args),
                     number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
                         validity=not args.no_validity)
+
+
+def _species_arg(args: argparse.Namespace):
+    if args.species is None:
+        return "default"
+    if not args.species.strip():
+        raise CLIError("--species is empty; give 'default', 'all' or a list such as 'Fe I,Fe II'")
+    return args.species
 
 
 def _cmd_grid(args: argparse.Namespace) -> int:
@@ -272,7 +280,7 @@ def _cmd_column(args: argparse.Namespace) -> int:
             raise CLIError(f"output {out} is the model file itself; choose another name")
     mixture = mixture_from_args(args)
     table = read_model(args.model)
-    result = solve_column(table, mixture=mixture, species=args.species or "default", state=args.state)
+    result = solve_column(table, mixture=mixture, species=_species_arg(args), state=args.state)
     written = [write_column(result, out, overwrite=args.overwrite, command=_command_line()) for out in outputs]
     n = len(result.table)
     print(f"ionbal column: {args.model}: {n} depth points, state input {result.state_variable}, mixture "
@@ -290,7 +298,7 @@ def _cmd_column(args: argparse.Namespace) -> int:
 
 
 def _add_grid_command(sub) -> None:
-    from .grid import DEFAULT_OUTPUT, DEFAULT_TILE_SIZE
+    from .grid import DEFAULT_OUTPUT, DEFAULT_STATE_AXIS, DEFAULT_TEMPERATURE_AXIS, DEFAULT_TILE_SIZE
 
     p = sub.add_parser(
         "grid", help="compute a temperature x state grid into an HDF5 file (the main job)",
@@ -304,9 +312,9 @@ def _add_grid_command(sub) -> None:
                "ionbal grid --metallicity-axis -2,-1,0 --alpha-axis 0,0.4 -o metal-poor.h5")
     ax = p.add_argument_group("axes (cgs units)")
     ax.add_argument("-T", "--temperature", default=None, metavar="AXIS",
-                    help="temperature axis [K] (default 2000:50000:301)")
+                    help=f"temperature axis [K] (default {DEFAULT_TEMPERATURE_AXIS})")
     for name, flag, short, helptext in STATE_OPTIONS:
-        extra = " (default 1e-4:1e8:241)" if name == "gas_pressure" else ""
+        extra = f" (default {DEFAULT_STATE_AXIS})" if name == "gas_pressure" else ""
         ax.add_argument(short, flag, dest=name, default=None, metavar="AXIS",
                         help=f"state axis: {helptext}{extra}")
     add_mixture_options(p)

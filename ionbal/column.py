@@ -35,7 +35,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .grid import STATE_AXES, resolve_species
+from .grid import STATE_AXES, resolve_species, species_fractions
 
 __all__ = [
     "read_model",
@@ -380,7 +380,8 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         bad = ~(np.isfinite(arr) & (arr > 0))
         if bad.any():
             i = int(np.flatnonzero(bad)[0])
-            raise ValueError(f"{name} at {_where(table, i)} is {arr[i]!r}; it must be a finite positive number")
+            raise ValueError(f"{name} at {_where(table, i)} is {float(arr[i])!r}; it must be a finite positive "
+                             "number")
     from .data.tables import partition_grid
 
     g = partition_grid()
@@ -433,13 +434,13 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         res[f"{q}_deviation_percent"] = pct
         res[f"{q}_deviation_dex"] = dex
 
-    nsp = len(sp_names)
-    frac = np.empty((nsp, len(T)))
-    dens = np.empty((nsp, len(T)))
+    frac = species_fractions(r, sp_names).reshape(len(sp_names), len(T))
+    weights = dict(zip(mix.elements, mix.number_fractions))
+    nuclei = np.asarray(r.nuclei_density, dtype=np.float64)
+    dens = np.empty_like(frac)
     with np.errstate(under="ignore"):
         for k, name in enumerate(sp_names):
-            frac[k] = r.fraction(name)
-            dens[k] = r.number_density(name)
+            dens[k] = frac[k] * nuclei * weights[name.split()[0].rstrip("-")]
     for k, name in enumerate(sp_names):
         res[species_column_name("fraction", name)] = frac[k]
     for k, name in enumerate(sp_names):

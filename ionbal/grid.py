@@ -96,6 +96,9 @@ AXIS_LONG_NAMES: dict[str, str] = {
     "metallicity": "[M/H], shift of log abundance of every element heavier than He",
     "alpha": "[alpha/M], extra shift of log abundance of O, Ne, Mg, Si, S, Ar, Ca, Ti",
 }
+#: default axes of ``ionbal grid`` (log-spaced)
+DEFAULT_TEMPERATURE_AXIS = "2000:50000:301"
+DEFAULT_STATE_AXIS = "1e-4:1e8:241"
 #: plain name of the default output file (in the current directory)
 DEFAULT_OUTPUT = "ionbal-grid.h5"
 #: default number of points per tile (a 64 x 64 block)
@@ -358,7 +361,7 @@ def resolve_species(mixture: Mixture, species) -> tuple[str, ...]:
     ValueError
         For an unreadable name, an element not in the mixture, or a repeated species.
     """
-    if species is None or (isinstance(species, str) and species.strip().lower() in ("default", "")):
+    if species is None or (isinstance(species, str) and species.strip().lower() == "default"):
         return default_species(mixture)
     if isinstance(species, str) and species.strip().lower() == "all":
         return all_species(mixture)
@@ -698,9 +701,12 @@ class GridSpec:
 
 
 def default_spec(**changes) -> GridSpec:
-    """The default grid of ``ionbal grid``: AGSS09; T 2,000-50,000 K (301, log) x P_gas 1e-4-1e8 dyn cm^-2 (241, log)."""
-    kw = dict(temperature=Axis.log("temperature", 2000.0, 50000.0, 301),
-              state=Axis.log("gas_pressure", 1e-4, 1e8, 241))
+    """The default grid of ``ionbal grid``.
+
+    AGSS09; T 2,000-50,000 K (301 values, log) x P_gas 1e-4-1e8 dyn cm^-2 (241 values, log).
+    """
+    kw = dict(temperature=Axis.parse("temperature", DEFAULT_TEMPERATURE_AXIS),
+              state=Axis.parse("gas_pressure", DEFAULT_STATE_AXIS))
     kw.update(changes)
     return GridSpec(**kw)
 
@@ -975,7 +981,15 @@ class WorkDir:
                         "the directory, or start over with --discard-parts")
                 self._clear()
         else:
-            # no spec: only a run killed before writing it; anything else here is not ours to reuse
+            # no spec.json: a run killed before writing it leaves at most the lock and hidden
+            # temporary files; anything else means the directory is not ours
+            foreign = [p.name for p in self.path.iterdir()
+                       if p.name != _LOCK_FILE and not (p.name.startswith(".") and ".tmp-" in p.name)]
+            if foreign:
+                self.close()
+                raise FileExistsError(f"{self.path} exists but is not an ionbal work directory (it holds "
+                                      f"{', '.join(sorted(foreign)[:3])}{', ...' if len(foreign) > 3 else ''}); "
+                                      "move it away")
             self._clear()
         if not spec_file.exists():
             payload = {"digest": self.digest, **self.spec.fingerprint()}
@@ -1326,6 +1340,8 @@ def run_grid(spec: GridSpec, output: str | os.PathLike = DEFAULT_OUTPUT, *, over
         command = "ionbal.grid.run_grid(...) from " + (" ".join(sys.argv) or "python")
 
     work = WorkDir(parts_dir_for(output), spec)
+    for stale in work.path.parent.glob(f".{work.path.name}.removing-*"):  # left by a kill during cleanup
+        shutil.rmtree(stale, ignore_errors=True)
     tiles = spec.tiles()
     compute_time = 0.0
     try:

@@ -831,7 +831,7 @@ class GridFile:
             bad |= ~(flat > 0)
         if bad.any():
             i = int(np.flatnonzero(bad)[0])
-            raise ValueError(f"{name} {flat[i]!r} at index {i} is not a valid value"
+            raise ValueError(f"{name} {float(flat[i])!r} at index {i} is not a valid value"
                              + (" (must be finite and positive)" if log else " (must be finite)"))
         lo, hi = ax[0], ax[-1]
         tol = 1e-12 * max(abs(lo), abs(hi), 1e-300) if not log else 0.0

@@ -311,6 +311,16 @@ def test_damaged_part_is_recomputed(tmp_path, monkeypatch, capsys):
     assert_same_numbers(ref.path, out)
 
 
+def test_foreign_directory_in_the_way_is_left_alone(tmp_path):
+    out = tmp_path / "g.h5"
+    parts = G.parts_dir_for(out)
+    parts.mkdir()
+    (parts / "notes.txt").write_text("mine")
+    with pytest.raises(FileExistsError, match="not an ionbal work directory"):
+        run_grid(small_spec(), out, progress=False)
+    assert (parts / "notes.txt").read_text() == "mine" and not out.exists()
+
+
 def test_lock_refuses_a_second_writer(tmp_path):
     spec = small_spec()
     w1 = G.WorkDir(G.parts_dir_for(tmp_path / "g.h5"), spec)
