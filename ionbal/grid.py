@@ -127,7 +127,7 @@ class GridMismatchError(ValueError):
     """The work directory of an output holds parts of a different grid."""
 
 
-class GridBusyError(RuntimeError):
+class GridBusyError(OSError):
     """Another process is computing the same output."""
 
 

@@ -704,7 +704,12 @@ class GridFile:
                        name=self.mixture_name or "custom")
 
     def __getitem__(self, name: str) -> np.ndarray:
-        """A stored variable (or an axis, or the state variable broadcast over the grid) as numpy."""
+        """A stored variable as numpy, e.g. ``g["electron_density"]``.
+
+        ``"temperature"`` and the state variable give their axis broadcast over
+        the grid (shape :attr:`shape`, read-only); the axes themselves are
+        :attr:`temperature` and :attr:`state`.
+        """
         if name == self.state_variable or name == "temperature":
             ax = self.axes[name]
             full = np.broadcast_to(ax[:, None] if name == "temperature" else ax[None, :], self.shape[-2:])

@@ -19,6 +19,7 @@ import pytest
 import ionbal
 from ionbal import grid as G
 from ionbal.grid import Axis, GridMismatchError, GridSpec, run_grid
+from ionbal.io import is_grid_file, open_grid
 
 T_AXIS = Axis.log("temperature", 3500.0, 9000.0, 9)
 P_AXIS = Axis.log("gas_pressure", 1e1, 1e6, 8)
@@ -236,7 +237,7 @@ def test_refuses_to_overwrite(tmp_path):
     assert out.read_bytes() == b"precious"
     assert not G.parts_dir_for(out).exists()
     run_grid(small_spec(), out, progress=False, overwrite=True)
-    assert ionbal.io.is_grid_file(out)
+    assert is_grid_file(out)
 
 
 def test_output_errors(tmp_path):
@@ -432,8 +433,8 @@ def test_kill_9_at_several_moments(tmp_path):
         # after each kill: the previous complete file, or (after the rename) the new complete one
         assert out.exists()
         if out.read_bytes() != old:
-            assert ionbal.io.is_grid_file(out)
-            with ionbal.open_grid(out) if hasattr(ionbal, "open_grid") else ionbal.io.open_grid(out) as g:
+            assert is_grid_file(out)
+            with open_grid(out) as g:
                 assert g.shape == (40, 36)
             break
     assert kills >= 1
