@@ -213,7 +213,7 @@ def grid_spec_from_args(args: argparse.Namespace):
     return GridSpec(temperature, state, base, metallicity=metallicity, alpha=alpha,
                     overrides=_parse_overrides(args.abundance), species=_species_arg(args),
                     number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
-                        validity=not args.no_validity)
+                    validity=not args.no_validity)
 
 
 def _species_arg(args: argparse.Namespace):
@@ -265,7 +265,7 @@ def _cmd_info(args: argparse.Namespace) -> int:
 def _cmd_column(args: argparse.Namespace) -> int:
     from pathlib import Path
 
-    from .column import default_output, read_model, solve_column, write_column
+    from .column import check_output, default_output, read_model, solve_column, write_column
 
     outputs = [Path(o) for o in (args.output or [default_output(args.model)])]
     seen = set()
@@ -274,8 +274,7 @@ def _cmd_column(args: argparse.Namespace) -> int:
         if key in seen:
             raise CLIError(f"output {out} is given twice")
         seen.add(key)
-        if out.exists() and not args.overwrite:
-            raise CLIError(f"output {out} already exists; pass --overwrite to replace it")
+        check_output(out, overwrite=args.overwrite)  # every output is checked before anything is written
         if Path(args.model).exists() and out.exists() and out.resolve() == Path(args.model).resolve():
             raise CLIError(f"output {out} is the model file itself; choose another name")
     mixture = mixture_from_args(args)

@@ -43,6 +43,7 @@ __all__ = [
     "ColumnResult",
     "Comparison",
     "write_column",
+    "check_output",
     "species_column_name",
     "MODEL_UNITS",
 ]
@@ -469,6 +470,22 @@ def _format_of(path: Path) -> str:
     raise ValueError(f"output {path}: unknown extension {ext or '(none)'}; use .ecsv or .h5")
 
 
+def check_output(path, *, overwrite: bool = False) -> str:
+    """Check that a column result can be written to ``path``; returns its format ("ecsv" or "hdf5")."""
+    path = Path(path)
+    fmt = _format_of(path)
+    if path.is_dir():
+        raise IsADirectoryError(f"output {path} is a directory")
+    if path.exists() and not overwrite:
+        raise FileExistsError(f"output {path} already exists; pass --overwrite to replace it")
+    parent = path.parent if str(path.parent) else Path(".")
+    if not parent.is_dir():
+        raise FileNotFoundError(f"cannot write {path}: directory {parent} does not exist")
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise PermissionError(f"cannot write {path}: directory {parent} is not writable")
+    return fmt
+
+
 def write_column(result: ColumnResult, path, *, overwrite: bool = False, command: str | None = None) -> Path:
     """Write a column result as ECSV (``.ecsv``) or HDF5 (``.h5``/``.hdf5``/``.nc``), atomically.
 
@@ -479,14 +496,7 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
     from .io import data_sources, write_table_file
 
     path = Path(path)
-    fmt = _format_of(path)
-    if path.exists() and path.is_dir():
-        raise IsADirectoryError(f"output {path} is a directory")
-    if path.exists() and not overwrite:
-        raise FileExistsError(f"output {path} already exists; pass --overwrite to replace it")
-    parent = path.parent if str(path.parent) else Path(".")
-    if not parent.is_dir():
-        raise FileNotFoundError(f"cannot write {path}: directory {parent} does not exist")
+    fmt = check_output(path, overwrite=overwrite)
     meta_extra = {"ionbal_version": __version__, "ionbal_command": command or "ionbal.column.write_column"}
     if fmt == "ecsv":
         t = result.table.copy(copy_data=False)

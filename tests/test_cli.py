@@ -165,6 +165,8 @@ def test_column_command(in_tmp, capsys):
     (["column"], "required"),
     (["column", "missing.txt"], "does not exist"),
     (["column", "model.txt", "-o", "out.fits"], "unknown extension"),
+    (["column", "model.txt", "-o", "ok.ecsv", "-o", "out.fits"], "unknown extension"),
+    (["column", "model.txt", "-o", "ok.ecsv", "-o", "no/dir/x.h5"], "does not exist"),
     (["column", "model.txt", "--state", "hydrogen_density"], "no hydrogen_density column"),
     (["column", "model.txt", "-o", "a.ecsv", "-o", "a.ecsv"], "given twice"),
     (["nonsense"], "invalid choice"),
