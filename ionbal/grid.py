@@ -1340,6 +1340,7 @@ def run_grid(spec: GridSpec, output: str | os.PathLike = DEFAULT_OUTPUT, *, over
         command = "ionbal.grid.run_grid(...) from " + (" ".join(sys.argv) or "python")
 
     work = WorkDir(parts_dir_for(output), spec)
+    created = not work.path.exists()
     for stale in work.path.parent.glob(f".{work.path.name}.removing-*"):  # left by a kill during cleanup
         shutil.rmtree(stale, ignore_errors=True)
     tiles = spec.tiles()
@@ -1385,7 +1386,10 @@ def run_grid(spec: GridSpec, output: str | os.PathLike = DEFAULT_OUTPUT, *, over
         _fsync_dir(output.parent if str(output.parent) else Path("."))
         write_time = time.monotonic() - t_write
     except BaseException:
-        work.close()
+        if created and work.path.is_dir() and not work.finished():
+            work.remove()  # nothing worth keeping: leave no trace of this run
+        else:
+            work.close()
         raise
     if keep_parts:
         work.close()

@@ -266,6 +266,13 @@ def _interrupt_after(monkeypatch, n):
     return real
 
 
+def test_failure_before_any_tile_leaves_no_work_directory(tmp_path, monkeypatch):
+    _interrupt_after(monkeypatch, 0)
+    with pytest.raises(KeyboardInterrupt):
+        run_grid(small_spec(), tmp_path / "g.h5", progress=False)
+    assert sorted(p.name for p in tmp_path.iterdir()) == []
+
+
 def test_interrupt_and_resume_is_bitwise_identical(tmp_path, monkeypatch):
     ref = run_grid(small_spec(), tmp_path / "ref.h5", progress=False)
     out = tmp_path / "g.h5"
