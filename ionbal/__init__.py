@@ -25,12 +25,18 @@ __all__ = [
     "parse_species",
     "partition_function",
     "ionization_energy",
+    "open_grid",
+    "GridFile",
+    "is_grid_file",
 ]
 
 # name -> (module, attribute), imported on first access (PEP 562)
 _LAZY = {
     "solve": (".api", "solve"),
     "IonizationResult": (".api", "IonizationResult"),
+    "open_grid": (".io", "open_grid"),
+    "GridFile": (".io", "GridFile"),
+    "is_grid_file": (".io", "is_grid_file"),
 }
 
 

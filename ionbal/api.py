@@ -256,6 +256,30 @@ class IonizationResult:
         lf = self._element_logfrac(e)
         return np.exp(lf.T).reshape((lf.shape[1],) + self.shape)
 
+    def species_fractions(self, species) -> np.ndarray:
+        """Fractions of many species at once, stacked: shape ``(len(species), *shape)``.
+
+        The same numbers as :meth:`fraction`, computed in one pass over the
+        elements involved, in batches of points so that memory stays bounded
+        (the fast way to fill an ion-fraction cube).
+        """
+        p = self._packed
+        names = [parse_species(s) for s in species]
+        elems = sorted({p.element_index(sp) for sp in names})
+        cols = np.array([p.stage_index(sp) for sp in names], dtype=np.int64)
+        sel = np.array(elems, dtype=np.int64)
+        n = self._T.size
+        batch = max(1, min(n, 1_000_000 // max(1, p.n_stages)))
+        buf = np.empty((batch, p.n_stages))
+        out = np.empty((len(names), n))
+        with np.errstate(under="ignore", over="ignore"):
+            for a in range(0, n, batch):
+                b = min(n, a + batch)
+                log_fractions_many(self._T[a:b], self._x[a:b], sel, p.elem_first, p.elem_n, p.stage_chi,
+                                   p.stage_row, p.stage_lnu_const, p.lnU, p.lt0, p.dlt, buf[: b - a])
+                out[:, a:b] = np.exp(buf[: b - a][:, cols].T)
+        return out.reshape((len(names),) + self.shape)
+
     def number_density(self, species) -> np.ndarray:
         """Number density of one species [cm^-3], e.g. ``number_density("H-")``."""
         sp = parse_species(species)

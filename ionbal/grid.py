@@ -768,62 +768,8 @@ def _validity_mask(result, shape) -> np.ndarray:
 
 
 def species_fractions(result, species: Sequence[str]) -> np.ndarray:
-    """Ion fractions of the given species at every point of a result, shape ``(n_species, n_points)``.
-
-    Bitwise the values of ``result.fraction(name)``, computed in one pass of
-    the stage-fraction kernel over batches of points for all the elements
-    needed (much faster than element by element for hundreds of species, and
-    with memory bounded by the batch).  Falls back to the public per-element
-    API if the result does not expose what the fast path needs.
-    """
-    try:
-        return _species_fractions_kernel(result, species)
-    except (AttributeError, TypeError, KeyError):
-        return _species_fractions_api(result, species)
-
-
-def _species_fractions_kernel(result, species: Sequence[str]) -> np.ndarray:
-    from .core.solver import log_fractions_many
-
-    p = result._packed
-    T = np.ascontiguousarray(result._T, dtype=np.float64)
-    x = np.ascontiguousarray(result._x, dtype=np.float64)
-    n = T.size
-    elems = sorted({p.element_index(parse_species(s)) for s in species})
-    sel = np.array(elems, dtype=np.int64)
-    cols = np.array([p.stage_index(s) for s in species], dtype=np.int64)
-    batch = max(1, min(n, 1_000_000 // max(1, p.n_stages)))
-    buf = np.empty((batch, p.n_stages))
-    out = np.empty((len(species), n))
-    with np.errstate(under="ignore", over="ignore"):
-        for a in range(0, n, batch):
-            b = min(n, a + batch)
-            log_fractions_many(T[a:b], x[a:b], sel, p.elem_first, p.elem_n, p.stage_chi, p.stage_row,
-                               p.stage_lnu_const, p.lnU, p.lt0, p.dlt, buf[: b - a])
-            out[:, a:b] = np.exp(buf[: b - a][:, cols].T)
-    return out
-
-
-def _species_fractions_api(result, species: Sequence[str]) -> np.ndarray:
-    shape = np.shape(result.temperature)
-    n = int(np.prod(shape, dtype=np.int64))
-    out = np.empty((len(species), n))
-    by_element: dict[str, list[tuple[int, str]]] = {}
-    for k, name in enumerate(species):
-        by_element.setdefault(parse_species(name).element, []).append((k, name))
-    with np.errstate(under="ignore", over="ignore", invalid="ignore"):
-        for el, items in by_element.items():
-            for k, name in items:
-                out[k] = np.asarray(result.fraction(name)).reshape(n)
-            _release(result)
-    return out
-
-
-def _release(result) -> None:
-    """Drop the per-element fraction cache of a result (bounds memory to one element at a time)."""
-    cache = getattr(result, "_logfrac_cache", None)
-    if isinstance(cache, dict):
-        cache.clear()
+    """Ion fractions of the given species at every point of a result, shape ``(n_species, n_points)``."""
+    return result.species_fractions(species).reshape(len(species), -1)
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -1422,12 +1368,9 @@ def _numba_threads(n: int | None):
 
 
 def _max_numba_threads() -> int:
-    try:
-        import numba
+    from .core.config import max_num_threads
 
-        return int(numba.config.NUMBA_NUM_THREADS)
-    except Exception:  # noqa: BLE001
-        return os.cpu_count() or 1
+    return max_num_threads()
 
 
 def _lazy_tasks(spec: GridSpec, tiles: Sequence[Tile], numba_threads: int | None = None) -> Iterator[TileTask]:

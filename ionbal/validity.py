@@ -147,9 +147,6 @@ VALIDITY_FLAGS: dict[str, tuple[str, float, str]] = {
     "unsolved": ("", math.nan, "not solved: invalid input, no physical state or no convergence (status != 0)"),
 }
 
-# points per chunk when summing ion moments straight from the kernel
-_CHUNK_VALUES = 2_000_000
-
 
 def electron_degeneracy(temperature, electron_density) -> np.ndarray:
     """``n_e λ_e³`` with ``λ_e = h / sqrt(2π m_e k T)`` (dimensionless)."""
@@ -248,36 +245,15 @@ def from_bitmask(mask) -> dict[str, np.ndarray]:
 def _ion_moments_kernel(result) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Per nucleus: Σ f q² (all charged stages), Σ f q^{5/3} and Σ f over positive ions.
 
-    Evaluated straight from the kernel in bounded chunks, without filling the
-    result's per-element fraction cache (a full-mixture cache of a large
-    result would need n_points x n_stages doubles at once).
+    Summed in the core (:func:`ionbal.core.solver.ion_moments_many`) over the
+    populated stages of each element, without building any fraction array.
     """
-    from .core.solver import log_fractions_many
+    from .core.solver import ion_moments_many
 
     p = result._packed
-    T = result._T
-    x = result._x
-    n = T.size
-    q = np.empty(p.n_stages)
-    w = np.empty(p.n_stages)
-    for e in range(p.elem_w.size):
-        f, k = int(p.elem_first[e]), int(p.elem_n[e])
-        q[f:f + k] = int(p.elem_q0[e]) + np.arange(k)
-        w[f:f + k] = p.elem_w[e]
-    pos = q > 0
-    v_q2 = w * q**2
-    v_q53 = np.where(pos, w * np.abs(q) ** (5.0 / 3.0), 0.0)
-    v_pos = np.where(pos, w, 0.0)
-    vecs = np.stack([v_q2, v_q53, v_pos], axis=1)
-    sel = np.arange(p.elem_w.size, dtype=np.int64)
-    chunk = max(1, _CHUNK_VALUES // p.n_stages)
-    buf = np.empty((min(chunk, n), p.n_stages))
-    out = np.empty((n, 3))
-    for a in range(0, n, chunk):
-        b = min(n, a + chunk)
-        log_fractions_many(T[a:b], x[a:b], sel, p.elem_first, p.elem_n, p.stage_chi, p.stage_row,
-                           p.stage_lnu_const, p.lnU, p.lt0, p.dlt, buf[: b - a])
-        out[a:b] = np.exp(buf[: b - a]) @ vecs
+    out = np.empty((result._T.size, 3))
+    ion_moments_many(result._T, result._x, p.elem_w, p.elem_first, p.elem_n, p.elem_q0, p.stage_chi,
+                     p.stage_row, p.stage_lnu_const, p.lnU, p.lt0, p.dlt, out)
     shape = result.shape
     return out[:, 0].reshape(shape), out[:, 1].reshape(shape), out[:, 2].reshape(shape)
 

@@ -152,10 +152,8 @@ def test_fast_fractions_equal_the_api():
     P = np.geomspace(1e-2, 1e7, 11)[None, :]
     r = ionbal.solve(T, gas_pressure=P, errors="mask")
     names = G.default_species(r.mixture)
-    fast = G._species_fractions_kernel(r, names)
-    slow = G._species_fractions_api(r, names)
-    assert fast.tobytes() == slow.tobytes()
-    for k in (0, 5, len(names) - 1):
+    fast = G.species_fractions(r, names)
+    for k in range(len(names)):
         assert fast[k].tobytes() == np.asarray(r.fraction(names[k])).ravel().tobytes()
 
 

@@ -37,6 +37,7 @@ __all__ = [
     "prange",
     "set_num_threads",
     "get_num_threads",
+    "max_num_threads",
 ]
 
 
@@ -67,6 +68,9 @@ if DISABLE_JIT:
         return None
 
     def get_num_threads() -> int:  # noqa: D103 - trivial
+        return 1
+
+    def max_num_threads() -> int:  # noqa: D103 - trivial
         return 1
 
 else:
@@ -105,6 +109,10 @@ else:
     prange = numba.prange
     set_num_threads = numba.set_num_threads
     get_num_threads = numba.get_num_threads
+
+    def max_num_threads() -> int:
+        """The most threads the parallel drivers may use (``NUMBA_NUM_THREADS``)."""
+        return int(numba.config.NUMBA_NUM_THREADS)
 
     _COMMON = dict(nopython=True, nogil=True, cache=CACHE, fastmath=FASTMATH, error_model="numpy")
 

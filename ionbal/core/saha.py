@@ -148,20 +148,14 @@ def find_peak(C, f, n, x, kp0):
 
 
 @jit
-def element_moments(C, f, n, q0, x, kp0):
-    """Charge moments of one element at ``x = ln n_e``.
+def populated_window(C, f, n, q0, x, kp0):
+    """The stages of one element that matter at ``x = ln n_e``: ``(kp, m, lo, hi)``.
 
-    Returns ``(pos, dpos, neg, dneg, kp)``: the mean positive charge and the
-    mean negative charge (H-) of the element's nuclei, their derivatives with
-    respect to ``x``, and the most populated stage position (a starting point
-    for the next call, see :func:`find_peak`).  With ``f_k ~ exp(C_k - k x)``,
-    ``d f_k / dx = -(k - <k>) f_k``.  Only stages within ``CUT`` (in ln) of
-    the peak are summed, walking outwards from it -- except that a neutral
-    element keeps its ions down to ``CUT`` below the first ion, since they
-    carry its charge however rare they are; every sum is taken
-    relative to the peak, and positive and negative parts are kept apart, so
-    that nothing is lost to round-off when they nearly cancel (cool, dense gas
-    where n(H-) rivals the positive ions).
+    ``kp`` is the most populated stage position and ``m`` its log weight
+    ``C_kp - kp x``; stages ``lo..hi`` lie within ``CUT`` (in ln) of the peak,
+    walking outwards from it -- except that a neutral element keeps its ions
+    down to ``CUT`` below the first ion, since they carry its charge however
+    rare they are, and hydrogen keeps all three stages.
     """
     kp, m = find_peak(C, f, n, x, kp0)
     # the populated window: walk outwards from the peak until CUT below it
@@ -183,6 +177,23 @@ def element_moments(C, f, n, q0, x, kp0):
         hi = 1
         while hi + 1 < n and C[f + hi + 1] - (hi + 1) * x - m >= t1 - CUT:
             hi += 1
+    return kp, m, lo, hi
+
+
+@jit
+def element_moments(C, f, n, q0, x, kp0):
+    """Charge moments of one element at ``x = ln n_e``.
+
+    Returns ``(pos, dpos, neg, dneg, kp)``: the mean positive charge and the
+    mean negative charge (H-) of the element's nuclei, their derivatives with
+    respect to ``x``, and the most populated stage position (a starting point
+    for the next call, see :func:`find_peak`).  With ``f_k ~ exp(C_k - k x)``,
+    ``d f_k / dx = -(k - <k>) f_k``.  Only the stages of
+    :func:`populated_window` are summed; every sum is taken relative to the peak, and positive and negative parts are kept apart, so
+    that nothing is lost to round-off when they nearly cancel (cool, dense gas
+    where n(H-) rivals the positive ions).
+    """
+    kp, m, lo, hi = populated_window(C, f, n, q0, x, kp0)
     s0 = 0.0
     s1 = 0.0
     s2 = 0.0
@@ -259,3 +270,26 @@ def element_log_fractions(C, f, n, x, out):
     lns = math.log(s0)
     for k in range(n):
         out[f + k] = C[f + k] - k * x - m - lns
+
+
+@jit
+def element_charge_powers(C, f, n, q0, x):
+    """Per nucleus of one element: ``(sum_k f_k q_k^2, sum_{q>0} f_k q_k^{5/3}, sum_{q>0} f_k)``.
+
+    The moments the plasma-validity parameters need (Debye length, Coulomb
+    coupling), summed over :func:`populated_window`.
+    """
+    kp, m, lo, hi = populated_window(C, f, n, q0, x, -1)
+    s0 = 0.0
+    sq2 = 0.0
+    sq53 = 0.0
+    spos = 0.0
+    for k in range(lo, hi + 1):
+        wt = math.exp(C[f + k] - k * x - m)
+        q = q0 + k
+        s0 += wt
+        sq2 += wt * q * q
+        if q > 0:
+            sq53 += wt * q ** (5.0 / 3.0)
+            spos += wt
+    return sq2 / s0, sq53 / s0, spos / s0

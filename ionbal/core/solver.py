@@ -38,6 +38,7 @@ from .config import jit, pjit, prange
 from .constants import K_B
 from .saha import (
     charge_moments,
+    element_charge_powers,
     element_log_fractions,
     element_log_weights,
     log_weights,
@@ -291,3 +292,38 @@ def charge_balance_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, st
                         qneg -= elem_w[e] * q * fr
             out_q[p] = qpos
             out_qneg[p] = qneg
+
+
+@pjit
+def ion_moments_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row, stage_lnu_const,
+                     lnU, lt0, dlt, out):
+    """Per nucleus at every point: ``sum f q^2``, ``sum_{q>0} f q^{5/3}`` and ``sum_{q>0} f``.
+
+    ``out`` has shape ``(n_points, 3)``; points with non-finite ``x`` get NaN.
+    Used by the validity flags (Debye length, Coulomb coupling).
+    """
+    n = T.size
+    n_stage = stage_chi.size
+    n_chunks = min(n, 256)
+    for c in prange(n_chunks):
+        start = (c * n) // n_chunks
+        stop = ((c + 1) * n) // n_chunks
+        C = np.empty(n_stage)
+        for p in range(start, stop):
+            if not (T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf):
+                out[p, 0] = np.nan
+                out[p, 1] = np.nan
+                out[p, 2] = np.nan
+                continue
+            log_weights(T[p], elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)
+            a = 0.0
+            b = 0.0
+            d = 0.0
+            for e in range(elem_w.size):
+                q2, q53, pos = element_charge_powers(C, elem_first[e], elem_n[e], elem_q0[e], x[p])
+                a += elem_w[e] * q2
+                b += elem_w[e] * q53
+                d += elem_w[e] * pos
+            out[p, 0] = a
+            out[p, 1] = b
+            out[p, 2] = d
