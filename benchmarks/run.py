@@ -72,6 +72,13 @@ def timed(fn, repeats: int):
     return statistics.median(times), times
 
 
+def _loadavg():
+    try:
+        return round(os.getloadavg()[0], 2)
+    except (AttributeError, OSError):
+        return None
+
+
 def machine_info() -> dict:
     info = {
         "nproc": os.cpu_count(),
@@ -108,8 +115,12 @@ def machine_info() -> dict:
     except Exception:  # noqa: BLE001 - informative only
         pass
     try:
-        info["git_commit"] = subprocess.run(["git", "-C", str(HERE), "rev-parse", "--short", "HEAD"],
-                                            capture_output=True, text=True, timeout=10).stdout.strip() or None
+        git = ["git", "-C", str(HERE.parent)]
+        info["git_commit"] = subprocess.run(git + ["rev-parse", "--short", "HEAD"], capture_output=True, text=True,
+                                            timeout=10).stdout.strip() or None
+        dirty = subprocess.run(git + ["status", "--porcelain", "--", "ionbal"], capture_output=True, text=True,
+                               timeout=10).stdout.strip()
+        info["ionbal_sources_modified"] = bool(dirty) if info["git_commit"] else None
     except (OSError, subprocess.SubprocessError):
         info["git_commit"] = None
     return info
@@ -159,6 +170,8 @@ class Report:
             else:
                 vs = f"{v:.3g}"
             verdict = "" if f["ok"] is None else ("met" if f["ok"] else "NOT MET")
+            if f["ok"] is False and f.get("note"):
+                verdict += f" ({f['note']})"
             rows.append((f["label"], f"{vs} {f['unit']}".strip(), f["target"] or "", verdict))
         for s in self.skipped.values():
             rows.append((s["label"], "skipped", "", s["reason"]))
@@ -211,40 +224,57 @@ def bench_throughput_and_floors(rep: Report, sz, sets):
         floors.full_floor(T[:64], np.log(r0.electron_density).ravel(), packed)
         floors.lean_floor(T[:64], np.log(r0.electron_density).ravel(), packed)
 
-        log(f"solve: {label} ({packed.elem_w.size} elements, {packed.n_stages} stages), {repeats} repeat(s)")
-        res = {}
-
-        def run():
-            res["r"] = ionbal.solve(T, gas_pressure=P, mixture=mixture)
-
-        t_solve, all_solve = timed(run, repeats)
-        r = res["r"]
-        x = np.ascontiguousarray(np.log(r.electron_density), dtype=np.float64)
-        it = np.asarray(r.iterations)
-        conv = float(np.mean(r.converged))
+        log(f"solve and floors: {label} ({packed.elem_w.size} elements, {packed.n_stages} stages), "
+            f"{repeats} interleaved repeat(s)")
         n = T.size
-        log(f"  {n / t_solve:,.0f} points/s, mean iterations {it.mean():.2f}, converged {conv:.6f}")
-
-        log(f"floors: {label}")
         q = np.empty(n)
         qn = np.empty(n)
-        t_full, all_full = timed(lambda: floors.full_floor(T, x, packed, q, qn), repeats)
-        t_lean, all_lean = timed(lambda: floors.lean_floor(T, x, packed, q, qn), repeats)
-        log(f"  full floor {n / t_full:,.0f} points/s, lean floor {n / t_lean:,.0f} points/s")
+        res = {}
+        wall = {"solve": [], "full": [], "lean": []}
+        cpu = {"solve": [], "full": [], "lean": []}
+
+        def solve_run():
+            res["r"] = ionbal.solve(T, gas_pressure=P, mixture=mixture)
+            if "x" not in res:
+                res["x"] = np.ascontiguousarray(np.log(res["r"].electron_density), dtype=np.float64).ravel()
+
+        runs = {"solve": solve_run,
+                "full": lambda: floors.full_floor(T, res["x"], packed, q, qn),
+                "lean": lambda: floors.lean_floor(T, res["x"], packed, q, qn)}
+        for _ in range(max(1, repeats)):
+            # solve, full floor, lean floor in turn: a burst of outside load hits all three alike
+            for name, fn in runs.items():
+                w0, c0 = time.perf_counter(), time.process_time()
+                fn()
+                wall[name].append(time.perf_counter() - w0)
+                cpu[name].append(time.process_time() - c0)
+        t_solve, t_full, t_lean = (statistics.median(wall[k]) for k in ("solve", "full", "lean"))
+        all_solve, all_full, all_lean = wall["solve"], wall["full"], wall["lean"]
+        ratio_full = statistics.median(a / b for a, b in zip(wall["solve"], wall["full"]))
+        ratio_lean = statistics.median(a / b for a, b in zip(wall["solve"], wall["lean"]))
+        cpu_ratio_full = statistics.median(cpu["solve"]) / statistics.median(cpu["full"])
+        cpu_ratio_lean = statistics.median(cpu["solve"]) / statistics.median(cpu["lean"])
+        r = res["r"]
+        x = res["x"]
+        it = np.asarray(r.iterations)
+        conv = float(np.mean(r.converged))
+        log(f"  solve {n / t_solve:,.0f} points/s, mean iterations {it.mean():.2f}, converged {conv:.6f}; "
+            f"full floor {n / t_full:,.0f} points/s, lean floor {n / t_lean:,.0f} points/s")
 
         rep.add(f"throughput_{key}", f"throughput: {label}", n / t_solve, "points/s",
-                seconds=t_solve, all_seconds=all_solve, points=n, elements=int(packed.elem_w.size),
-                stages=int(packed.n_stages), converged_fraction=conv)
+                seconds=t_solve, all_seconds=all_solve, cpu_seconds=cpu["solve"], points=n,
+                elements=int(packed.elem_w.size), stages=int(packed.n_stages), converged_fraction=conv)
         rep.add(f"iterations_{key}", f"  mean Newton iterations ({key})", float(it.mean()), "",
                 max=int(it.max()), histogram={int(k): int(v) for k, v in zip(*np.unique(it, return_counts=True))})
         rep.add(f"floor_full_{key}", f"  full floor: all Saha factors + all fractions ({key})", n / t_full,
-                "points/s", seconds=t_full, all_seconds=all_full)
-        rep.add(f"solve_over_floor_{key}", f"  solve / full floor ({key})", t_solve / t_full, "",
-                target="solve_over_floor")
+                "points/s", seconds=t_full, all_seconds=all_full, cpu_seconds=cpu["full"])
+        rep.add(f"solve_over_floor_{key}", f"  solve / full floor ({key})", ratio_full, "",
+                target="solve_over_floor", cpu_time_ratio=cpu_ratio_full,
+                note="median over repeats of the per-repeat wall-time ratio")
         rep.add(f"floor_lean_{key}", f"  lean floor: all Saha factors + 1 moment eval ({key})", n / t_lean,
-                "points/s", seconds=t_lean, all_seconds=all_lean)
-        rep.add(f"solve_over_lean_floor_{key}", f"  solve / lean floor ({key})", t_solve / t_lean, "",
-                note="for reference; the target applies to the full floor")
+                "points/s", seconds=t_lean, all_seconds=all_lean, cpu_seconds=cpu["lean"])
+        rep.add(f"solve_over_lean_floor_{key}", f"  solve / lean floor ({key})", ratio_lean, "",
+                cpu_time_ratio=cpu_ratio_lean, note="for reference; the target applies to the full floor")
         results[key] = dict(T=T, P=P, mixture=mixture, x=x, seconds=t_solve)
     return results
 
@@ -305,22 +335,33 @@ def bench_scaling(rep: Report, sz):
     ionbal.solve(T[:64], gas_pressure=P[:64], mixture=mixture)
     before = numba.get_num_threads()
     times = {1: [], 2: []}
+    cpus = {1: [], 2: []}
     log(f"thread scaling: {n} states, AGSS09, {sz['scaling_repeats']} interleaved repeat(s)")
     try:
         for _ in range(sz["scaling_repeats"]):
             for k in (1, 2):  # interleaved, so a burst of outside load hits both
                 numba.set_num_threads(k)
-                t0 = time.perf_counter()
+                t0, c0 = time.perf_counter(), time.process_time()
                 ionbal.solve(T, gas_pressure=P, mixture=mixture)
                 times[k].append(time.perf_counter() - t0)
+                cpus[k].append(time.process_time() - c0)
     finally:
         numba.set_num_threads(before)
     t1 = statistics.median(times[1])
     t2 = statistics.median(times[2])
-    log(f"  1 thread {n / t1:,.0f} points/s, 2 threads {n / t2:,.0f} points/s")
-    rep.add("rate_1_thread", f"throughput, 1 thread (AGSS09, {n} states)", n / t1, "points/s", all_seconds=times[1])
-    rep.add("rate_2_threads", "throughput, 2 threads", n / t2, "points/s", all_seconds=times[2])
-    rep.add("thread_scaling", "  thread scaling 1 -> 2", t1 / t2, "x", target="thread_scaling")
+    # CPU seconds per wall second of the 2-thread runs: ~2 when both cores were ours, ~1 when
+    # another process held one of them (then the scaling says nothing about ionbal)
+    busy = statistics.median(c / w for c, w in zip(cpus[2], times[2]))
+    log(f"  1 thread {n / t1:,.0f} points/s, 2 threads {n / t2:,.0f} points/s; "
+        f"2-thread runs got {busy:.2f} CPU-s per wall-s")
+    rep.add("rate_1_thread", f"throughput, 1 thread (AGSS09, {n} states)", n / t1, "points/s", all_seconds=times[1],
+            cpu_seconds=cpus[1])
+    rep.add("rate_2_threads", "throughput, 2 threads", n / t2, "points/s", all_seconds=times[2],
+            cpu_seconds=cpus[2])
+    note = "" if busy >= 1.8 else "the 2-thread runs did not get two cores: the machine was busy"
+    rep.add("thread_scaling", "  thread scaling 1 -> 2", statistics.median(a / b for a, b in zip(times[1], times[2])),
+            "x", target="thread_scaling", note=note)
+    rep.add("cpu_per_wall_2_threads", "  CPU-s per wall-s in the 2-thread runs (2 = both cores ours)", busy, "")
 
 
 def bench_startup(rep: Report, sz):
@@ -426,6 +467,7 @@ def main(argv=None) -> int:
     log(f"{mode} run on {machine['nproc']} CPU(s), {machine['cpu_model']}, {machine['memory_gib']} GiB")
     rep = Report()
     t_start = time.perf_counter()
+    load = {"start": _loadavg()}
     throughput = {}
     if "throughput" in sections:
         throughput = bench_throughput_and_floors(rep, sz, problem_sets(sz))
@@ -438,13 +480,16 @@ def main(argv=None) -> int:
     if "memory" in sections:
         bench_memory(rep, sz)
     total = time.perf_counter() - t_start
+    load["end"] = _loadavg()
 
     print()
     print(f"ionbal benchmarks ({mode} run; {machine['date']}; {machine['nproc']} CPU(s) {machine['cpu_model']}, "
-          f"{machine['memory_gib']} GiB; numba threads {machine.get('numba_threads')}; {total:.0f} s)")
+          f"{machine['memory_gib']} GiB; numba threads {machine.get('numba_threads')}; {total:.0f} s; "
+          f"load average {load['start']} at start, {load['end']} at end)")
     print(rep.table())
     if args.json:
         payload = dict(mode=mode, sizes=sz, sections=list(sections), machine=machine, total_seconds=total,
+                       load_average=load,
                        targets={k: f"{op} {v:g}" for k, (op, v) in TARGETS.items()},
                        figures=rep.figures, skipped=rep.skipped)
         Path(args.json).write_text(json.dumps(payload, indent=2, default=float) + "\n")
