@@ -264,7 +264,7 @@ def test_the_resolver_itself():
 JIT_OFF_STATES = {"T": [1500.0, 5800.0, 12000.0, 3.0e5], "P": [1e6, 1e5, 1e2, 1e-3]}
 
 
-def test_disable_jit_gives_the_same_answers():
+def test_disable_jit_gives_the_same_answers(tmp_path):
     code = textwrap.dedent("""
         import json, sys
         import numpy as np
@@ -281,8 +281,9 @@ def test_disable_jit_gives_the_same_answers():
                           "status": r.status.tolist(), "ne_e": e.nuclei_density.tolist()}))
     """)
     env = dict(os.environ, IONBAL_DISABLE_JIT="1")
+    # run outside the source tree, so that the installed package (with its tables) is imported
     out = subprocess.run([sys.executable, "-c", code, json.dumps(JIT_OFF_STATES)], capture_output=True, text=True,
-                         env=env, timeout=900)
+                         env=env, timeout=900, cwd=tmp_path)
     assert out.returncode == 0, out.stderr
     plain = json.loads(out.stdout.strip().splitlines()[-1])
 
