@@ -18,6 +18,7 @@ from .core.solver import (
     MODE_NUCLEI_DENSITY,
     TOL,
     log_fractions_many,
+    solve_few,
     solve_many,
 )
 from .data.mixture import Mixture
@@ -35,6 +36,9 @@ STATE_VARIABLES: dict[str, tuple[str, str]] = {
 }
 
 _ERRORS = ("raise", "mask")
+
+#: up to this many points are solved on the calling thread (waking the thread pool costs more)
+SERIAL_POINTS = 16
 
 
 def default_mixture() -> Mixture:
@@ -512,8 +516,9 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
     lnn = np.empty(n)
     it = np.empty(n, dtype=np.int32)
     code = np.empty(n, dtype=np.int8)
-    solve_many(mode, Tf, vf, gf, *packed.kernel_arrays(), packed.q_max, float(tol), int(max_iterations),
-               x, lnn, it, code)
+    driver = solve_few if n <= SERIAL_POINTS else solve_many
+    driver(mode, Tf, vf, gf, *packed.kernel_arrays(), packed.q_max, float(tol), int(max_iterations),
+           x, lnn, it, code)
 
     if errors == "raise":
         bad = (code != st.OK) & (code != st.NO_SOLUTION) & (code != st.MAX_ITERATIONS)

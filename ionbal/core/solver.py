@@ -217,6 +217,28 @@ def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
             out_status[i] = code
 
 
+@jit
+def solve_few(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
+              stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
+              out_x, out_ln_nuc, out_iter, out_status):
+    """:func:`solve_many` on the calling thread, for a handful of points.
+
+    Same arguments and (bitwise) the same results; it avoids waking the
+    thread pool, which costs more than the solve for a few points, and on a
+    busy machine much more.
+    """
+    C = np.empty(stage_chi.size)
+    kpk = np.empty(elem_w.size, dtype=np.int64)
+    for i in range(T.size):
+        x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, kpk, elem_w, elem_first, elem_n,
+                                       elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt,
+                                       q_max, tol, max_iter)
+        out_x[i] = x
+        out_ln_nuc[i] = lnn
+        out_iter[i] = it
+        out_status[i] = code
+
+
 @pjit
 def log_fractions_many(T, x, sel_elem, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const,
                        lnU, lt0, dlt, out):
