@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import math
 import warnings
 from numbers import Integral, Real
 from typing import Mapping
@@ -23,7 +22,7 @@ from .core.solver import (
 )
 from .data.mixture import Mixture
 from .data.pack import PackedMixture, freeze_overrides, pack
-from .data.species import Species, parse_species
+from .data.species import parse_species
 
 __all__ = ["solve", "IonizationResult", "STATE_VARIABLES", "default_mixture"]
 

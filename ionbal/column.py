@@ -493,7 +493,7 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
     one is complete.
     """
     from . import __version__
-    from .io import data_sources, write_table_file
+    from .io import atomic_output, data_sources, write_table_file
 
     path = Path(path)
     fmt = check_output(path, overwrite=overwrite)
@@ -504,16 +504,8 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
         t.meta["ionbal_data_sources"] = {k: v.get("title", "") for k, v in data_sources().items()}
         for c in result.comparisons:
             t.meta[f"ionbal_comparison_{c.quantity}"] = c.summary()
-        tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
-        try:
+        with atomic_output(path) as tmp:
             t.write(tmp, format="ascii.ecsv", overwrite=True)
-            with open(tmp, "rb+") as fh:
-                os.fsync(fh.fileno())
-            os.replace(tmp, path)
-        except BaseException:
-            with contextlib.suppress(OSError):
-                tmp.unlink()
-            raise
         return path
     cols = {}
     sp_cols = {species_column_name("fraction", s) for s in result.species} | \

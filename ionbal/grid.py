@@ -41,7 +41,6 @@ import math
 import os
 import shutil
 import sys
-import threading
 import time
 import zipfile
 from dataclasses import dataclass, field
@@ -876,18 +875,12 @@ def _fsync_dir(path: Path) -> None:
 
 
 def _atomic_write_bytes(path: Path, write: Callable) -> None:
-    """Write via ``write(fileobj)`` to a temporary sibling, fsync, then rename onto ``path``."""
-    tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}-{threading.get_ident()}")
-    try:
+    """Write via ``write(fileobj)`` so that ``path`` appears only when complete (see :func:`io.atomic_output`)."""
+    from .io import atomic_output
+
+    with atomic_output(path) as tmp:
         with open(tmp, "wb") as fh:
             write(fh)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            tmp.unlink()
-        raise
 
 
 class WorkDir:

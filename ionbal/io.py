@@ -427,6 +427,29 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
 # writing a table (model-atmosphere columns)
 # ---------------------------------------------------------------------------------------------------
 
+@contextlib.contextmanager
+def atomic_output(path: Path):
+    """Write a file so that it appears under ``path`` only when complete.
+
+    Yields a temporary sibling path to write to; when the block ends without
+    an error the file is flushed to disk (fsync) and renamed onto ``path``
+    (atomic on POSIX), otherwise it is removed.  An interrupted process
+    therefore leaves either the previous file or nothing under ``path``.
+    """
+    import threading
+
+    tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}-{threading.get_ident()}")
+    try:
+        yield tmp
+        with open(tmp, "rb+") as fh:
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
+        raise
+
+
 def write_table_file(path, columns: Mapping[str, tuple], *, species: Sequence[str] = (),
                      cubes: Mapping[str, np.ndarray] | None = None, attrs: Mapping[str, Any] | None = None,
                      overwrite: bool = False, dim: str = "depth_point") -> None:
@@ -459,8 +482,7 @@ def write_table_file(path, columns: Mapping[str, tuple], *, species: Sequence[st
         elif m != n:
             raise ValueError(f"column {name} has {m} rows, expected {n}")
     n = n or 0
-    tmp = path.with_name(f".{path.name}.tmp-{os.getpid()}")
-    try:
+    with atomic_output(path) as tmp:
         with h5py.File(tmp, "w", track_order=True) as f:
             _coordinate(f, dim, np.arange(n, dtype=np.int32), units="1", long_name="index of the depth point "
                         "(0 = first row of the input)")
@@ -487,13 +509,6 @@ def write_table_file(path, columns: Mapping[str, tuple], *, species: Sequence[st
             for k, v in (attrs or {}).items():
                 f.attrs[k] = v
             f.attrs["ionbal_complete"] = np.int8(1)
-        with open(tmp, "rb+") as fh:
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            tmp.unlink()
-        raise
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -188,6 +188,29 @@ def solve_point(mode, T, value, x_guess, C, kpk, elem_w, elem_first, elem_n, ele
     return best_x, best_ln, max_iter, st.MAX_ITERATIONS
 
 
+@jit
+def solve_few(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
+              stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
+              out_x, out_ln_nuc, out_iter, out_status):
+    """Solve the points one after another on the calling thread (work arrays allocated once).
+
+    Same arguments as :func:`solve_many` and (bitwise) the same results: the
+    parallel driver runs this on each of its chunks, and the API calls it
+    directly for a handful of points, where waking the thread pool would cost
+    more than the solve (on a busy machine much more).
+    """
+    C = np.empty(stage_chi.size)
+    kpk = np.empty(elem_w.size, dtype=np.int64)
+    for i in range(T.size):
+        x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, kpk, elem_w, elem_first, elem_n,
+                                       elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt,
+                                       q_max, tol, max_iter)
+        out_x[i] = x
+        out_ln_nuc[i] = lnn
+        out_iter[i] = it
+        out_status[i] = code
+
+
 @pjit
 def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
                stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
@@ -200,43 +223,13 @@ def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
     the points are split into calls, chunks or tiles.
     """
     n = T.size
-    n_stage = stage_chi.size
     n_chunks = min(n, 256)
     for c in prange(n_chunks):
         start = (c * n) // n_chunks
         stop = ((c + 1) * n) // n_chunks
-        C = np.empty(n_stage)
-        kpk = np.empty(elem_w.size, dtype=np.int64)
-        for i in range(start, stop):
-            x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, kpk, elem_w, elem_first, elem_n,
-                                           elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt,
-                                           q_max, tol, max_iter)
-            out_x[i] = x
-            out_ln_nuc[i] = lnn
-            out_iter[i] = it
-            out_status[i] = code
-
-
-@jit
-def solve_few(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
-              stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
-              out_x, out_ln_nuc, out_iter, out_status):
-    """:func:`solve_many` on the calling thread, for a handful of points.
-
-    Same arguments and (bitwise) the same results; it avoids waking the
-    thread pool, which costs more than the solve for a few points, and on a
-    busy machine much more.
-    """
-    C = np.empty(stage_chi.size)
-    kpk = np.empty(elem_w.size, dtype=np.int64)
-    for i in range(T.size):
-        x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, kpk, elem_w, elem_first, elem_n,
-                                       elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt,
-                                       q_max, tol, max_iter)
-        out_x[i] = x
-        out_ln_nuc[i] = lnn
-        out_iter[i] = it
-        out_status[i] = code
+        solve_few(mode, T[start:stop], value[start:stop], x_guess[start:stop], elem_w, elem_first, elem_n,
+                  elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
+                  out_x[start:stop], out_ln_nuc[start:stop], out_iter[start:stop], out_status[start:stop])
 
 
 @pjit
