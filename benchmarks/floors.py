@@ -26,7 +26,7 @@ import numpy as np
 
 from ionbal.core.config import pjit, prange
 from ionbal.core.saha import charge_moments, log_weights
-from ionbal.core.solver import charge_balance_many
+from ionbal.core.solver import N_CHUNKS, charge_balance_many, chunk_bounds
 
 __all__ = ["full_floor", "lean_floor", "weights_only", "moments_repeated"]
 
@@ -44,10 +44,9 @@ def full_floor(T, x, packed, out_q=None, out_qneg=None):
 def _lean_floor_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row, stage_lnu_const,
                      lnU, lt0, dlt, out_q, out_qneg):
     n = T.size
-    n_chunks = min(n, 256)
+    n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
-        start = (c * n) // n_chunks
-        stop = ((c + 1) * n) // n_chunks
+        start, stop = chunk_bounds(c, n, n_chunks)
         C = np.empty(stage_chi.size)
         kpk = np.empty(elem_w.size, dtype=np.int64)
         for p in range(start, stop):
@@ -75,10 +74,9 @@ def lean_floor(T, x, packed, out_q=None, out_qneg=None):
 @pjit(cache=False)
 def _weights_many(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, out):
     n = T.size
-    n_chunks = min(n, 256)
+    n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
-        start = (c * n) // n_chunks
-        stop = ((c + 1) * n) // n_chunks
+        start, stop = chunk_bounds(c, n, n_chunks)
         C = np.empty(stage_chi.size)
         acc = 0.0
         for p in range(start, stop):
@@ -105,10 +103,9 @@ def _moments_many(T, x, repeats, warm, elem_w, elem_first, elem_n, elem_q0, stag
     later Newton iterations); otherwise every evaluation scans all stages.
     """
     n = T.size
-    n_chunks = min(n, 256)
+    n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
-        start = (c * n) // n_chunks
-        stop = ((c + 1) * n) // n_chunks
+        start, stop = chunk_bounds(c, n, n_chunks)
         C = np.empty(stage_chi.size)
         kpk = np.empty(elem_w.size, dtype=np.int64)
         for p in range(start, stop):

@@ -29,6 +29,7 @@ import pytest
 import ionbal
 from ionbal import _problems
 from ionbal.core.config import pjit, prange
+from ionbal.core.solver import N_CHUNKS, chunk_bounds
 from ionbal.core.saha import log_weights
 from ionbal.core.solver import charge_balance_many
 from ionbal.data.pack import pack
@@ -55,10 +56,9 @@ def _conservation_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, sta
     as the API forms them, exp(C_k - k x - max - ln sum)."""
     n = T.size
     n_stage = stage_chi.size
-    n_chunks = min(n, 256)
+    n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
-        start = (c * n) // n_chunks
-        stop = ((c + 1) * n) // n_chunks
+        start, stop = chunk_bounds(c, n, n_chunks)
         C = np.empty(n_stage)
         for p in range(start, stop):
             log_weights(T[p], elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)

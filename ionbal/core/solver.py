@@ -55,8 +55,16 @@ TOL = 1e-13
 #: tolerance accepted when the Newton step has stagnated at round-off level
 TOL_STAGNATION = 1e-12
 MAX_ITER = 200
+#: the parallel drivers split their points into at most this many contiguous chunks (one work array each)
+N_CHUNKS = 256
 #: |h| below which the last Newton step is taken without evaluating its residual (quadratic convergence)
 FINAL_STEP = 1e-8
+
+
+@jit
+def chunk_bounds(c, n, n_chunks):
+    """``(start, stop)`` of chunk ``c`` when ``n`` points are split into ``n_chunks`` contiguous chunks."""
+    return (c * n) // n_chunks, ((c + 1) * n) // n_chunks
 
 
 @jit
@@ -223,10 +231,9 @@ def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
     the points are split into calls, chunks or tiles.
     """
     n = T.size
-    n_chunks = min(n, 256)
+    n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
-        start = (c * n) // n_chunks
-        stop = ((c + 1) * n) // n_chunks
+        start, stop = chunk_bounds(c, n, n_chunks)
         solve_few(mode, T[start:stop], value[start:stop], x_guess[start:stop], elem_w, elem_first, elem_n,
                   elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
                   out_x[start:stop], out_ln_nuc[start:stop], out_iter[start:stop], out_status[start:stop])
@@ -244,10 +251,9 @@ def log_fractions_many(T, x, sel_elem, elem_first, elem_n, stage_chi, stage_row,
     n = T.size
     n_stage = stage_chi.size
     n_t = lnU.shape[1]
-    n_chunks = min(n, 256)
+    n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
-        start = (c * n) // n_chunks
-        stop = ((c + 1) * n) // n_chunks
+        start, stop = chunk_bounds(c, n, n_chunks)
         C = np.empty(n_stage)
         row = np.empty(n_stage)
         i = 0
@@ -285,10 +291,9 @@ def charge_balance_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, st
     """
     n = T.size
     n_stage = stage_chi.size
-    n_chunks = min(n, 256)
+    n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
-        start = (c * n) // n_chunks
-        stop = ((c + 1) * n) // n_chunks
+        start, stop = chunk_bounds(c, n, n_chunks)
         C = np.empty(n_stage)
         lf = np.empty(n_stage)
         for p in range(start, stop):
@@ -319,10 +324,9 @@ def ion_moments_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage
     """
     n = T.size
     n_stage = stage_chi.size
-    n_chunks = min(n, 256)
+    n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
-        start = (c * n) // n_chunks
-        stop = ((c + 1) * n) // n_chunks
+        start, stop = chunk_bounds(c, n, n_chunks)
         C = np.empty(n_stage)
         for p in range(start, stop):
             if not (T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf):
