@@ -268,19 +268,12 @@ class IonizationResult:
         """
         p = self._packed
         names = [parse_species(s) for s in species]
-        elems = sorted({p.element_index(sp) for sp in names})
+        elems = {p.element_index(sp) for sp in names}
         cols = np.array([p.stage_index(sp) for sp in names], dtype=np.int64)
-        sel = np.array(elems, dtype=np.int64)
-        n = self._T.size
-        batch = max(1, min(n, 1_000_000 // max(1, p.n_stages)))
-        buf = np.empty((batch, p.n_stages))
-        out = np.empty((len(names), n))
+        out = np.empty((len(names), self._T.size))
         with np.errstate(under="ignore", over="ignore"):
-            for a in range(0, n, batch):
-                b = min(n, a + batch)
-                log_fractions_many(self._T[a:b], self._x[a:b], sel, p.elem_first, p.elem_n, p.stage_chi,
-                                   p.stage_row, p.stage_lnu_const, p.lnU, p.lt0, p.dlt, buf[: b - a])
-                out[:, a:b] = np.exp(buf[: b - a][:, cols].T)
+            for a, b, rows in _log_fraction_batches(p, elems, self._T, self._x):
+                out[:, a:b] = np.exp(rows[:, cols].T)
         return out.reshape((len(names),) + self.shape)
 
     def number_density(self, species) -> np.ndarray:
@@ -337,22 +330,30 @@ class IonizationResult:
                 f"input={self.state_variable} converged={ok}/{n}>")
 
 
-def _element_log_fractions(p: PackedMixture, e: int, T: np.ndarray, x: np.ndarray) -> np.ndarray:
-    """ln of the stage fractions of element ``e`` at every point, shape ``(n_points, n_stages_e)``.
+def _log_fraction_batches(p: PackedMixture, elements, T: np.ndarray, x: np.ndarray):
+    """Yield ``(a, b, rows)``: ln stage fractions of the given elements at points ``a:b``.
 
-    The kernel writes full-width rows; they are computed in chunks of bounded
-    size so memory does not grow with the mixture times the number of points.
+    ``rows`` has the full stage width (only the given elements' columns are
+    filled); points are taken in batches of bounded size, so memory does not
+    grow with the mixture times the number of points.
     """
-    f, n = int(p.elem_first[e]), int(p.elem_n[e])
-    out = np.empty((T.size, n))
-    chunk = max(1, 2_000_000 // p.n_stages)
-    buf = np.empty((min(chunk, T.size), p.n_stages))
-    sel = np.array([e], dtype=np.int64)
-    for a in range(0, T.size, chunk):
-        b = min(T.size, a + chunk)
+    sel = np.array(sorted(elements), dtype=np.int64)
+    n = T.size
+    batch = max(1, min(n, 1_000_000 // max(1, p.n_stages)))
+    buf = np.empty((batch, p.n_stages))
+    for a in range(0, n, batch):
+        b = min(n, a + batch)
         log_fractions_many(T[a:b], x[a:b], sel, p.elem_first, p.elem_n, p.stage_chi, p.stage_row,
                            p.stage_lnu_const, p.lnU, p.lt0, p.dlt, buf[: b - a])
-        out[a:b] = buf[: b - a, f:f + n]
+        yield a, b, buf[: b - a]
+
+
+def _element_log_fractions(p: PackedMixture, e: int, T: np.ndarray, x: np.ndarray) -> np.ndarray:
+    """ln of the stage fractions of element ``e`` at every point, shape ``(n_points, n_stages_e)``."""
+    f, n = int(p.elem_first[e]), int(p.elem_n[e])
+    out = np.empty((T.size, n))
+    for a, b, rows in _log_fraction_batches(p, [e], T, x):
+        out[a:b] = rows[:, f:f + n]
     return out
 
 
