@@ -36,7 +36,7 @@ def full_floor(T, x, packed, out_q=None, out_qneg=None):
     if out_q is None:
         out_q = np.empty(T.size)
         out_qneg = np.empty(T.size)
-    charge_balance_many(T, x, *packed.kernel_arrays(), out_q, out_qneg)
+    charge_balance_many(T, x, packed.arrays, out_q, out_qneg)
     return out_q, out_qneg
 
 
@@ -63,7 +63,7 @@ def lean_floor(T, x, packed, out_q=None, out_qneg=None):
     if out_q is None:
         out_q = np.empty(T.size)
         out_qneg = np.empty(T.size)
-    _lean_floor_many(T, x, *packed.kernel_arrays(), out_q, out_qneg)
+    _lean_floor_many(T, x, *packed.arrays[:10], out_q, out_qneg)
     return out_q, out_qneg
 
 
@@ -127,6 +127,6 @@ def _moments_many(T, x, repeats, warm, elem_w, elem_first, elem_n, elem_q0, stag
 def moments_repeated(T, x, packed, repeats, warm):
     """Saha weights once, then ``repeats`` charge-moment evaluations per point."""
     out = np.empty(T.size)
-    _moments_many(T, x, int(repeats), bool(warm), *packed.kernel_arrays(), out)
+    _moments_many(T, x, int(repeats), bool(warm), *packed.arrays[:10], out)
     return out
 

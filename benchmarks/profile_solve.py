@@ -133,8 +133,7 @@ def main(argv=None) -> int:
     m = min(n, 20_000)
     sel_all = np.arange(p.elem_w.size, dtype=np.int64)
     lf = np.empty((m, p.n_stages))
-    log_fractions_many(T[:m], x[:m], sel_all, p.elem_first, p.elem_n, p.stage_chi, p.stage_row,
-                       p.stage_lnu_const, p.lnU, p.lt0, p.dlt, lf)
+    log_fractions_many(T[:m], x[:m], sel_all, p.arrays, lf)
     charges = np.concatenate([np.arange(q0, q0 + k) for q0, k in zip(p.elem_q0, p.elem_n)]).astype(float)
     owner = np.repeat(np.arange(p.elem_w.size), p.elem_n)
     frac = np.exp(lf)

@@ -105,10 +105,10 @@ r = ionbal.solve(T, gas_pressure=P, mixture=mix)
 x = np.log(r.electron_density)
 out = np.empty(T.size)
 def t(mode, reps):
-    proto_many(T[:10], x[:10], reps, mode, *pk.kernel_arrays(), out[:10])
+    proto_many(T[:10], x[:10], reps, mode, *pk.arrays[:10], out[:10])
     ts = []
     for _ in range(3):
-        t0 = time.perf_counter(); proto_many(T, x, reps, mode, *pk.kernel_arrays(), out); ts.append(time.perf_counter() - t0)
+        t0 = time.perf_counter(); proto_many(T, x, reps, mode, *pk.arrays[:10], out); ts.append(time.perf_counter() - t0)
     return statistics.median(ts) / T.size * 1e6
 a1, a5 = t(0, 1), t(0, 5)
 b1, b5 = t(1, 1), t(1, 5)
@@ -116,5 +116,5 @@ print(f"current : weights+1 eval {a1:.2f} us, per later eval {(a5-a1)/4:.2f} us"
 print(f"poly    : weights+setup+1 eval {b1:.2f} us, per later eval {(b5-b1)/4:.2f} us")
 # check values agree
 o0 = np.empty(T.size); o1 = np.empty(T.size)
-proto_many(T, x, 3, 0, *pk.kernel_arrays(), o0); proto_many(T, x, 3, 1, *pk.kernel_arrays(), o1)
+proto_many(T, x, 3, 0, *pk.arrays[:10], o0); proto_many(T, x, 3, 1, *pk.arrays[:10], o1)
 print("max rel diff of summed Qpos:", np.max(np.abs(o0 - o1) / np.abs(o0)))

@@ -343,8 +343,7 @@ def _log_fraction_batches(p: PackedMixture, elements, T: np.ndarray, x: np.ndarr
     buf = np.empty((batch, p.n_stages))
     for a in range(0, n, batch):
         b = min(n, a + batch)
-        log_fractions_many(T[a:b], x[a:b], sel, p.elem_first, p.elem_n, p.stage_chi, p.stage_row,
-                           p.stage_lnu_const, p.lnU, p.lt0, p.dlt, buf[: b - a])
+        log_fractions_many(T[a:b], x[a:b], sel, p.arrays, buf[: b - a])
         yield a, b, buf[: b - a]
 
 
@@ -517,8 +516,7 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
     it = np.empty(n, dtype=np.int32)
     code = np.empty(n, dtype=np.int8)
     driver = solve_few if n <= SERIAL_POINTS else solve_many
-    driver(mode, Tf, vf, gf, *packed.kernel_arrays(), packed.q_max, float(tol), int(max_iterations),
-           x, lnn, it, code)
+    driver(mode, Tf, vf, gf, packed.arrays, float(tol), int(max_iterations), x, lnn, it, code)
 
     if errors == "raise":
         bad = (code != st.OK) & (code != st.NO_SOLUTION) & (code != st.MAX_ITERATIONS)

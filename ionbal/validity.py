@@ -252,8 +252,7 @@ def _ion_moments_kernel(result) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
     p = result._packed
     out = np.empty((result._T.size, 3))
-    ion_moments_many(result._T, result._x, p.elem_w, p.elem_first, p.elem_n, p.elem_q0, p.stage_chi,
-                     p.stage_row, p.stage_lnu_const, p.lnU, p.lt0, p.dlt, out)
+    ion_moments_many(result._T, result._x, p.arrays, out)
     shape = result.shape
     return out[:, 0].reshape(shape), out[:, 1].reshape(shape), out[:, 2].reshape(shape)
 

@@ -113,7 +113,7 @@ def conservation(result, state_variable: str, value, per_point: bool = False) ->
     qpos = np.empty(T.size)
     qneg = np.empty(T.size)
     fdev = np.empty(T.size)
-    _conservation_many(T, x, *p.kernel_arrays(), qpos, qneg, fdev)
+    _conservation_many(T, x, *p.arrays[:10], qpos, qneg, fdev)
     charge = np.abs(ne + nn * qneg - nn * qpos) / (nn * qpos)
 
     target = np.broadcast_to(np.asarray(value, dtype=np.float64), result.shape).ravel()
@@ -228,7 +228,7 @@ def test_conservation_kernel_matches_charge_balance_many():
         x = np.log(np.asarray(r.electron_density)[ok])
         a = [np.empty(Tf.size) for _ in range(3)]
         b = [np.empty(Tf.size) for _ in range(2)]
-        _conservation_many(Tf, x, *p.kernel_arrays(), *a)
-        charge_balance_many(Tf, x, *p.kernel_arrays(), *b)
+        _conservation_many(Tf, x, *p.arrays[:10], *a)
+        charge_balance_many(Tf, x, p.arrays, *b)
         np.testing.assert_allclose(a[0], b[0], rtol=1e-13, atol=0)
         np.testing.assert_allclose(a[1], b[1], rtol=1e-13, atol=1e-300)

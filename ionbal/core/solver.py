@@ -90,12 +90,23 @@ def weak_ionization_guess(C, lnN, elem_w, elem_first, elem_q0):
 
 
 @jit
-def solve_point(mode, T, value, x_guess, C, kpk, elem_w, elem_first, elem_n, elem_q0,
-                stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter):
+def solve_point(mode, T, value, x_guess, C, kpk, mix, tol, max_iter):
     """Solve one state.  ``C`` (n_stages) and ``kpk`` (int, n_elements) are work arrays.
 
+    ``mix`` is the :class:`~ionbal.core.bundle.MixtureArrays` bundle.
     Returns ``(x, ln_n_nuc, iterations, status)``.
     """
+    elem_w = mix.elem_w
+    elem_first = mix.elem_first
+    elem_n = mix.elem_n
+    elem_q0 = mix.elem_q0
+    stage_chi = mix.stage_chi
+    stage_row = mix.stage_row
+    stage_lnu_const = mix.stage_lnu_const
+    lnU = mix.lnU
+    lt0 = mix.lt0
+    dlt = mix.dlt
+    q_max = mix.q_max
     nan = np.nan
     if not (T > 0.0 and T < np.inf and value > 0.0 and value < np.inf):
         return nan, nan, 0, st.INVALID_INPUT
@@ -197,9 +208,7 @@ def solve_point(mode, T, value, x_guess, C, kpk, elem_w, elem_first, elem_n, ele
 
 
 @jit
-def solve_few(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
-              stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
-              out_x, out_ln_nuc, out_iter, out_status):
+def solve_few(mode, T, value, x_guess, mix, tol, max_iter, out_x, out_ln_nuc, out_iter, out_status):
     """Solve the points one after another on the calling thread (work arrays allocated once).
 
     Same arguments as :func:`solve_many` and (bitwise) the same results: the
@@ -207,12 +216,10 @@ def solve_few(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
     directly for a handful of points, where waking the thread pool would cost
     more than the solve (on a busy machine much more).
     """
-    C = np.empty(stage_chi.size)
-    kpk = np.empty(elem_w.size, dtype=np.int64)
+    C = np.empty(mix.stage_chi.size)
+    kpk = np.empty(mix.elem_w.size, dtype=np.int64)
     for i in range(T.size):
-        x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, kpk, elem_w, elem_first, elem_n,
-                                       elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt,
-                                       q_max, tol, max_iter)
+        x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, kpk, mix, tol, max_iter)
         out_x[i] = x
         out_ln_nuc[i] = lnn
         out_iter[i] = it
@@ -220,9 +227,7 @@ def solve_few(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
 
 
 @pjit
-def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
-               stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
-               out_x, out_ln_nuc, out_iter, out_status):
+def solve_many(mode, T, value, x_guess, mix, tol, max_iter, out_x, out_ln_nuc, out_iter, out_status):
     """Solve every point of the 1-D arrays ``T``, ``value`` (and ``x_guess``, NaN = none).
 
     Points are split into contiguous chunks, one work array per chunk, so the
@@ -234,20 +239,28 @@ def solve_many(mode, T, value, x_guess, elem_w, elem_first, elem_n, elem_q0,
     n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
         start, stop = chunk_bounds(c, n, n_chunks)
-        solve_few(mode, T[start:stop], value[start:stop], x_guess[start:stop], elem_w, elem_first, elem_n,
-                  elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, q_max, tol, max_iter,
+        solve_few(mode, T[start:stop], value[start:stop], x_guess[start:stop], mix, tol, max_iter,
                   out_x[start:stop], out_ln_nuc[start:stop], out_iter[start:stop], out_status[start:stop])
 
 
 @pjit
-def log_fractions_many(T, x, sel_elem, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const,
-                       lnU, lt0, dlt, out):
+def log_fractions_many(T, x, sel_elem, mix, out):
     """ln of the stage fractions of the selected elements at every point.
 
     ``sel_elem`` lists element indices; ``out`` has shape ``(n_points, n_stages)``
     and only the columns of the selected elements are written (others are left
     untouched).  Points with non-finite ``x`` get NaN.
     """
+    elem_w = mix.elem_w
+    elem_first = mix.elem_first
+    elem_n = mix.elem_n
+    elem_q0 = mix.elem_q0
+    stage_chi = mix.stage_chi
+    stage_row = mix.stage_row
+    stage_lnu_const = mix.stage_lnu_const
+    lnU = mix.lnU
+    lt0 = mix.lt0
+    dlt = mix.dlt
     n = T.size
     n_stage = stage_chi.size
     n_t = lnU.shape[1]
@@ -280,8 +293,7 @@ def log_fractions_many(T, x, sel_elem, elem_first, elem_n, stage_chi, stage_row,
 
 
 @pjit
-def charge_balance_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row, stage_lnu_const,
-                        lnU, lt0, dlt, out_q, out_qneg):
+def charge_balance_many(T, x, mix, out_q, out_qneg):
     """One evaluation of every Saha factor and every stage fraction at given ``x = ln n_e``.
 
     The arithmetic that no solve can avoid and every user of the fractions
@@ -289,6 +301,16 @@ def charge_balance_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, st
     stage, and from them the positive and negative charge per nucleus.  Used
     as the benchmark floor and by the tests to check conservation.
     """
+    elem_w = mix.elem_w
+    elem_first = mix.elem_first
+    elem_n = mix.elem_n
+    elem_q0 = mix.elem_q0
+    stage_chi = mix.stage_chi
+    stage_row = mix.stage_row
+    stage_lnu_const = mix.stage_lnu_const
+    lnU = mix.lnU
+    lt0 = mix.lt0
+    dlt = mix.dlt
     n = T.size
     n_stage = stage_chi.size
     n_chunks = min(n, N_CHUNKS)
@@ -315,13 +337,22 @@ def charge_balance_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, st
 
 
 @pjit
-def ion_moments_many(T, x, elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row, stage_lnu_const,
-                     lnU, lt0, dlt, out):
+def ion_moments_many(T, x, mix, out):
     """Per nucleus at every point: ``sum f q^2``, ``sum_{q>0} f q^{5/3}`` and ``sum_{q>0} f``.
 
     ``out`` has shape ``(n_points, 3)``; points with non-finite ``x`` get NaN.
     Used by the validity flags (Debye length, Coulomb coupling).
     """
+    elem_w = mix.elem_w
+    elem_first = mix.elem_first
+    elem_n = mix.elem_n
+    elem_q0 = mix.elem_q0
+    stage_chi = mix.stage_chi
+    stage_row = mix.stage_row
+    stage_lnu_const = mix.stage_lnu_const
+    lnU = mix.lnU
+    lt0 = mix.lt0
+    dlt = mix.dlt
     n = T.size
     n_stage = stage_chi.size
     n_chunks = min(n, N_CHUNKS)

@@ -14,6 +14,7 @@ from typing import Mapping
 
 import numpy as np
 
+from ..core.bundle import MixtureArrays
 from ..core.constants import AMU
 from .elements import atomic_mass
 from .mixture import Mixture
@@ -38,6 +39,9 @@ class PackedMixture:
         The kernel arrays (see :mod:`ionbal.core.saha`).
     q_max : float
         Net charge per nucleus at full ionization.
+    arrays : MixtureArrays
+        The kernel arrays bundled once, at pack time: the one argument every
+        kernel takes (see :mod:`ionbal.core.bundle`).
     mean_mass : float
         Mean mass per nucleus [g] (neutral-atom masses, so electrons included).
     """
@@ -58,6 +62,7 @@ class PackedMixture:
     q_max: float
     mean_mass: float
     h_minus: bool
+    arrays: MixtureArrays = field(repr=False, default=None)
     _stage_index: dict = field(repr=False, default_factory=dict)
     _elem_index: dict = field(repr=False, default_factory=dict)
 
@@ -76,11 +81,6 @@ class PackedMixture:
         """Number fraction of hydrogen among all nuclei (0 if none)."""
         e = self._elem_index.get(1)
         return 0.0 if e is None else float(self.elem_w[e])
-
-    def kernel_arrays(self) -> tuple:
-        """``(elem_w, elem_first, elem_n, elem_q0, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt)``."""
-        return (self.elem_w, self.elem_first, self.elem_n, self.elem_q0, self.stage_chi, self.stage_row,
-                self.stage_lnu_const, self.lnU, self.lt0, self.dlt)
 
     def element_index(self, element) -> int:
         """Kernel index of an element given by symbol, Z or Species."""
@@ -233,6 +233,9 @@ def pack(mixture: Mixture, overrides: tuple = ((), ()), h_minus: bool = True) ->
         mean_mass=float(np.sum(w * masses)) * AMU,
         h_minus=bool(h_minus),
     )
+    object.__setattr__(packed, "arrays", MixtureArrays(
+        packed.elem_w, packed.elem_first, packed.elem_n, packed.elem_q0, packed.stage_chi, packed.stage_row,
+        packed.stage_lnu_const, packed.lnU, packed.lt0, packed.dlt, packed.q_max))
     packed._stage_index.update({sp: i for i, sp in enumerate(species)})
     packed._elem_index.update({int(z): e for e, z in enumerate(zs)})
     return packed

@@ -1,0 +1,32 @@
+"""The one bundle of mixture arrays every kernel takes.
+
+A mixture is packed once (:mod:`ionbal.data.pack`) into a :class:`MixtureArrays`
+named tuple; kernels receive that one argument instead of a dozen arrays, so
+adding an array to the packing changes the bundle and the kernels that read
+it, not every signature and every caller.  numba compiles attribute access
+on a named tuple to a plain field load, so nothing is paid at run time.
+
+Fields (fixed cgs units, energies in eV; see :mod:`ionbal.core.saha`):
+
+``elem_w``           number fraction of each element among all nuclei
+``elem_first``       index of each element's first stage in the stage arrays
+``elem_n``           number of stages of each element
+``elem_q0``          charge of each element's first stage (-1 for H with H-)
+``stage_chi``        energy [eV] from each stage to the next
+``stage_row``        row of ``lnU`` holding the stage's ln U(T), or -1
+``stage_lnu_const``  constant ln U of the stages without a row
+``lnU``              ln U on the uniform grid ``log10 T = lt0 + i * dlt``
+``lt0``, ``dlt``     that grid
+``q_max``            net charge per nucleus at full ionization
+"""
+
+from __future__ import annotations
+
+from collections import namedtuple
+
+__all__ = ["MixtureArrays", "FIELDS"]
+
+FIELDS = ("elem_w", "elem_first", "elem_n", "elem_q0", "stage_chi", "stage_row", "stage_lnu_const",
+          "lnU", "lt0", "dlt", "q_max")
+
+MixtureArrays = namedtuple("MixtureArrays", FIELDS)
