@@ -818,11 +818,11 @@ class GridFile:
 
     # -- interpolation --------------------------------------------------------------------------
     def _query(self, temperature, state, metallicity, alpha):
-        from .api import STATE_VARIABLES, _strip_unit
+        from .quantities import unit
+        from .validate import as_cgs_array
 
-        cols = {"temperature": _strip_unit(temperature, "K", "temperature"),
-                self.state_variable: _strip_unit(state, STATE_VARIABLES[self.state_variable][0],
-                                                 self.state_variable)}
+        cols = {"temperature": as_cgs_array(temperature, unit("temperature"), "temperature"),
+                self.state_variable: as_cgs_array(state, unit(self.state_variable), self.state_variable)}
         if self.has_composition:
             for name, v in (("metallicity", metallicity), ("alpha", alpha)):
                 ax = self.axes[name]

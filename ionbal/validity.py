@@ -242,43 +242,6 @@ def from_bitmask(mask) -> dict[str, np.ndarray]:
     return out
 
 
-def _ion_moments_kernel(result) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Per nucleus: Σ f q² (all charged stages), Σ f q^{5/3} and Σ f over positive ions.
-
-    Summed in the core (:func:`ionbal.core.solver.ion_moments_many`) over the
-    populated stages of each element, without building any fraction array.
-    """
-    from .core.solver import ion_moments_many
-
-    p = result._packed
-    out = np.empty((result._T.size, 3))
-    ion_moments_many(result._T, result._x, p.arrays, out)
-    shape = result.shape
-    return out[:, 0].reshape(shape), out[:, 1].reshape(shape), out[:, 2].reshape(shape)
-
-
-def _ion_moments_public(result) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Same as :func:`_ion_moments_kernel`, through the public result methods (slower, more memory)."""
-    from .data.species import parse_species
-
-    mix = result.mixture
-    w = mix.number_fractions
-    s_q2 = np.zeros(result.shape)
-    s_q53 = np.zeros(result.shape)
-    s_pos = np.zeros(result.shape)
-    for el, we in zip(mix.elements, w):
-        fr = result.fractions(el)
-        for k, name in enumerate(result.stages(el)):
-            qk = parse_species(name).charge
-            if qk == 0:
-                continue
-            s_q2 = s_q2 + we * qk * qk * fr[k]
-            if qk > 0:
-                s_q53 = s_q53 + we * qk ** (5.0 / 3.0) * fr[k]
-                s_pos = s_pos + we * fr[k]
-    return s_q2, s_q53, s_pos
-
-
 def assess(result, *, use_kernel: bool = True) -> Validity:
     """Validity flags of an :class:`ionbal.IonizationResult` (see the module docstring).
 
@@ -292,10 +255,7 @@ def assess(result, *, use_kernel: bool = True) -> Validity:
     T = np.asarray(result.temperature, dtype=np.float64)
     ne = np.asarray(result.electron_density, dtype=np.float64)
     nn = np.asarray(result.nuclei_density, dtype=np.float64)
-    if use_kernel and hasattr(result, "_packed") and hasattr(result, "_x"):
-        m_q2, m_q53, m_pos = _ion_moments_kernel(result)
-    else:
-        m_q2, m_q53, m_pos = _ion_moments_public(result)
+    m_q2, m_q53, m_pos = result.ion_moments(use_kernel=use_kernel)
 
     solved = np.isfinite(ne) & np.isfinite(nn) & np.isfinite(T) & (T > 0)
     status = getattr(result, "status", None)

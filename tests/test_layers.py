@@ -46,7 +46,7 @@ CORE_FORBIDDEN = {"astropy", "h5py", "netCDF4", "h5netcdf", "xarray", "dask", "p
 LAYERS = {
     "core": 1,
     "data": 2,
-    "api": 3, "validity": 3, "_problems": 3, "_version": 3, "__init__": 3,
+    "api": 3, "validity": 3, "quantities": 3, "result": 3, "validate": 3, "_problems": 3, "_version": 3, "__init__": 3,
     "grid": 4, "io": 4, "column": 4,
     "cli": 5,
 }

@@ -101,7 +101,7 @@ def symbol(z: int | str) -> str:
 @lru_cache(maxsize=1)
 def atomic_masses() -> np.ndarray:
     """Atomic masses in u as a read-only array of shape (93,), index Z (entry 0 is NaN)."""
-    from .tables import _read_ecsv
+    from ._files import _read_ecsv
 
     names, rows = _read_ecsv("atomic_masses.ecsv")
     iz, im = names.index("Z"), names.index("atomic_mass")

@@ -320,7 +320,7 @@ def _rebuild(values: dict, name: str, base: str, mh: float, am: float) -> Mixtur
 
 @lru_cache(maxsize=None)
 def _solar(key: str) -> Mixture:
-    from .tables import _read_ecsv
+    from ._files import _read_ecsv
 
     names, rows = _read_ecsv("abundances.ecsv")
     iz, ik = names.index("Z"), names.index(key)

@@ -110,6 +110,17 @@ class Species:
         object.__setattr__(self, "charge", int(self.charge))
         _check(self.Z, self.charge)
 
+    # -- the species protocol (shared with molecules): label, charge, composition, kind ------------
+    @property
+    def composition(self) -> tuple:
+        """Nuclei of the species as ``((Z, count), ...)`` sorted by Z; an atom or atomic ion is ``((Z, 1),)``."""
+        return ((self.Z, 1),)
+
+    @property
+    def is_molecule(self) -> bool:
+        """False: an atom or atomic ion (a molecule is a species of another class)."""
+        return False
+
     @property
     def element(self) -> str:
         """Element symbol, e.g. ``"Fe"``."""

@@ -1,0 +1,184 @@
+"""The one registry of quantities: state inputs and outputs, their units, names and formulas.
+
+Every quantity ionbal takes or gives is declared here once, as a :class:`Quantity`:
+
+* its name (the Python keyword of :func:`ionbal.solve`, the attribute of the result, the dataset of
+  grid files, the column of model files),
+* its cgs unit in one spelling (CF/FITS style, ``"dyn cm-2"``; converted by astropy where needed),
+* a short label (messages, CLI help) and a long name (the ``long_name`` of files),
+* its kind: ``"state"`` (temperature, which every state has), ``"point"`` (one value per point),
+  ``"species"`` (one value per species and point), ``"axis"`` or ``"label"`` (file coordinates),
+* whether it can be the second state input (``state_input``, with its CLI flag), and
+* for outputs, how it is computed from a solved state (``compute``, see :class:`SolvedState`).
+
+:func:`ionbal.solve`, :class:`ionbal.result.IonizationResult`, the grid writer and reader, the
+model-column files and the CLI all read this table: a new state input or output quantity is one
+entry here (plus, for an input, its solver mode in :func:`ionbal.api.solve`).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+from typing import Callable
+
+import numpy as np
+
+from .core.constants import AMU
+
+__all__ = [
+    "Quantity",
+    "SolvedState",
+    "QUANTITIES",
+    "STATE_INPUTS",
+    "POINT_OUTPUTS",
+    "SPECIES_OUTPUTS",
+    "get",
+    "unit",
+    "astropy_unit",
+    "long_name",
+    "unit_text",
+]
+
+KINDS = ("state", "point", "species", "axis", "label", "meta")
+
+
+@dataclass(frozen=True)
+class SolvedState:
+    """What every output is computed from: flat arrays of one solve (cgs) and the packed mixture.
+
+    ``ne`` and ``nn`` are the free-electron and nuclei densities (NaN where unsolved), ``kT`` is
+    ``k_B T``; ``packed`` is the :class:`ionbal.data.pack.PackedMixture` (weights, masses).
+    """
+
+    temperature: np.ndarray
+    ne: np.ndarray
+    nn: np.ndarray
+    kT: np.ndarray
+    packed: object
+
+
+@dataclass(frozen=True)
+class Quantity:
+    """One quantity of the registry (see the module docstring)."""
+
+    name: str
+    unit: str
+    label: str
+    long_name: str
+    kind: str = "point"
+    state_input: bool = False
+    flag: str | None = None
+    short_flag: str | None = None
+    compute: Callable[[SolvedState], np.ndarray] | None = None
+    dtype: str = "float64"
+
+    def __post_init__(self) -> None:
+        if self.kind not in KINDS:
+            raise ValueError(f"quantity {self.name}: kind must be one of {KINDS}, got {self.kind!r}")
+
+    @property
+    def help(self) -> str:
+        """CLI help text, e.g. ``gas pressure [dyn cm^-2]``."""
+        return f"{self.label} [{unit_text(self.unit)}]"
+
+
+def _q(*args, **kw) -> Quantity:
+    return Quantity(*args, **kw)
+
+
+#: every quantity, in the order files and tables list them
+QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
+    _q("temperature", "K", "temperature", "temperature", kind="state"),
+    # --- state inputs (the second state variable); the order is the order of preference
+    _q("gas_pressure", "dyn cm-2", "gas pressure", "gas pressure (ideal gas: nuclei and free electrons)",
+       state_input=True, flag="--gas-pressure", short_flag="-P",
+       compute=lambda s: (s.nn + s.ne) * s.kT),
+    _q("mass_density", "g cm-3", "mass density", "mass density",
+       state_input=True, flag="--mass-density", short_flag="-r",
+       compute=lambda s: s.nn * s.packed.mean_mass),
+    _q("hydrogen_density", "cm-3", "number density of hydrogen nuclei",
+       "number density of hydrogen nuclei (H-, H I, H II)",
+       state_input=True, flag="--hydrogen-density", short_flag="-n",
+       compute=lambda s: s.nn * s.packed.hydrogen_weight),
+    _q("electron_pressure", "dyn cm-2", "electron pressure", "electron pressure",
+       state_input=True, flag="--electron-pressure", short_flag="-e",
+       compute=lambda s: s.ne * s.kT),
+    # --- per-point outputs
+    _q("electron_density", "cm-3", "free-electron number density", "free-electron number density",
+       compute=lambda s: s.ne),
+    _q("nuclei_density", "cm-3", "number density of all nuclei",
+       "number density of all nuclei (every element and stage)", compute=lambda s: s.nn),
+    _q("mean_molecular_weight", "1", "mean molecular weight",
+       "mean molecular weight per free particle, rho / ((n_nuclei + n_e) m_u)",
+       compute=lambda s: s.packed.mean_mass / ((1.0 + s.ne / s.nn) * AMU)),
+    # --- per-species outputs (cubes)
+    _q("ion_fraction", "1", "ion fraction", "fraction of the element's nuclei in this ionization stage",
+       kind="species"),
+    _q("number_density", "cm-3", "number density", "number density of the species", kind="species"),
+    # --- solver bookkeeping, composition axes, coordinates and tables of files
+    _q("status", "1", "solver status", "solver status per point", kind="meta", dtype="int8"),
+    _q("iterations", "1", "solver iterations", "solver iterations per point", kind="meta", dtype="int32"),
+    _q("metallicity", "1", "[M/H]", "[M/H], shift of log abundance of every element heavier than He",
+       kind="axis"),
+    _q("alpha", "1", "[alpha/M]", "[alpha/M], extra shift of log abundance of O, Ne, Mg, Si, S, Ar, Ca, Ti",
+       kind="axis"),
+    _q("partition_function", "1", "partition function", "partition function of the species", kind="label"),
+    _q("abundance", "1", "abundance", "A(X) = log10(N_X / N_H) + 12", kind="label"),
+    _q("atomic_mass", "u", "atomic mass", "standard atomic weight", kind="label"),
+    _q("atomic_number", "1", "atomic number", "atomic number Z", kind="label"),
+    _q("species", "", "species", "species in spectroscopic notation (Fe II = Fe+; H- is the hydrogen anion)",
+       kind="label"),
+    _q("element", "", "element", "element symbol", kind="label"),
+)}
+
+#: the state variables besides temperature, in order of preference (solve keywords, grid axes, model columns)
+STATE_INPUTS: tuple[str, ...] = tuple(n for n, q in QUANTITIES.items() if q.state_input)
+#: per-point outputs of a solve, in file order (the state inputs are outputs too)
+POINT_OUTPUTS: tuple[str, ...] = ("electron_density", "electron_pressure", "gas_pressure", "mass_density",
+                                  "hydrogen_density", "nuclei_density", "mean_molecular_weight")
+#: per-species outputs (cubes of grid files)
+SPECIES_OUTPUTS: tuple[str, ...] = tuple(n for n, q in QUANTITIES.items() if q.kind == "species")
+
+# every quantity with a formula is a per-point output, and every per-point output has a formula
+assert set(POINT_OUTPUTS) == {n for n, q in QUANTITIES.items() if q.compute is not None}
+
+
+def get(name: str) -> Quantity:
+    """The registry entry of ``name``; a ValueError lists the known quantities."""
+    try:
+        return QUANTITIES[name]
+    except KeyError:
+        raise ValueError(f"unknown quantity {name!r}; known: {', '.join(QUANTITIES)}") from None
+
+
+def unit(name: str) -> str:
+    """cgs unit of a quantity in the one spelling of the registry (``"dyn cm-2"``; ``""`` if unknown)."""
+    q = QUANTITIES.get(name)
+    return q.unit if q is not None else ""
+
+
+@lru_cache(maxsize=None)
+def _astropy_unit(text: str):
+    import astropy.units as u
+
+    if text in ("", "1"):
+        return u.dimensionless_unscaled
+    return u.Unit(text)
+
+
+def astropy_unit(name_or_unit: str):
+    """The astropy unit of a quantity name (or of a unit string of the registry's spelling)."""
+    q = QUANTITIES.get(name_or_unit)
+    return _astropy_unit(q.unit if q is not None else name_or_unit)
+
+
+def long_name(name: str) -> str:
+    q = QUANTITIES.get(name)
+    return q.long_name if q is not None else name
+
+
+def unit_text(text: str) -> str:
+    """A unit for people: ``"dyn cm-2"`` -> ``"dyn cm^-2"``."""
+    return re.sub(r"([A-Za-z])(-?\d+)", r"\1^\2", text)
