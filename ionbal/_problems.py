@@ -16,6 +16,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .quantities import STATE_INPUTS
+
 __all__ = [
     "T_RANGE",
     "P_GAS_RANGE",
@@ -29,7 +31,7 @@ __all__ = [
 
 T_RANGE = (1.0e3, 1.0e6)
 P_GAS_RANGE = (1.0e-6, 1.0e12)
-STATE_VARIABLES = ("gas_pressure", "mass_density", "hydrogen_density", "electron_pressure")
+STATE_VARIABLES = STATE_INPUTS  # from the quantity registry
 
 
 def mixtures() -> dict:

@@ -19,6 +19,8 @@ from typing import Sequence
 
 import numpy as np
 
+from .quantities import QUANTITIES
+
 __all__ = ["main", "build_parser", "CLIError"]
 
 
@@ -71,12 +73,8 @@ def mixture_from_args(args: argparse.Namespace):
     return mix
 
 
-STATE_OPTIONS = (
-    ("gas_pressure", "--gas-pressure", "-P", "gas pressure [dyn cm^-2]"),
-    ("mass_density", "--mass-density", "-r", "mass density [g cm^-3]"),
-    ("hydrogen_density", "--hydrogen-density", "-n", "number density of hydrogen nuclei [cm^-3]"),
-    ("electron_pressure", "--electron-pressure", "-e", "electron pressure [dyn cm^-2]"),
-)
+#: (name, flag, short flag, help) of every state input, from the quantity registry
+STATE_OPTIONS = tuple((q.name, q.flag, q.short_flag, q.help) for q in QUANTITIES.values() if q.state_input)
 
 
 # ---------------------------------------------------------------------------------------------------

@@ -28,14 +28,21 @@ are kept under the name ``input_<name>``.
 
 from __future__ import annotations
 
-import contextlib
-import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
-from .grid import STATE_AXES, resolve_species, species_fractions
+from ._version import __version__
+from .io.atomic import atomic_output
+from .io.formats import format_of
+from .io.models import MODEL_UNITS, read_model
+from .io.models import canonical_column_name as _canon
+from .io.provenance import data_sources
+from .io.tablefile import write_table_file
+from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit
+from .selection import resolve_species
+from .validate import check_output_path, outside_temperature_range, table_temperature_range
 
 __all__ = [
     "read_model",
@@ -48,30 +55,7 @@ __all__ = [
     "MODEL_UNITS",
 ]
 
-#: cgs units of the columns ionbal knows
-MODEL_UNITS: dict[str, str] = {
-    "temperature": "K",
-    "gas_pressure": "dyn / cm2",
-    "mass_density": "g / cm3",
-    "hydrogen_density": "1 / cm3",
-    "electron_pressure": "dyn / cm2",
-    "electron_density": "1 / cm3",
-}
-_OUTPUTS = (
-    ("electron_density", "1 / cm3"),
-    ("electron_pressure", "dyn / cm2"),
-    ("gas_pressure", "dyn / cm2"),
-    ("mass_density", "g / cm3"),
-    ("hydrogen_density", "1 / cm3"),
-    ("nuclei_density", "1 / cm3"),
-    ("mean_molecular_weight", ""),
-)
 _COMPARED = ("electron_density", "electron_pressure")
-MAX_MODEL_BYTES = 512 * 1024 * 1024
-
-
-def _canon(name: str) -> str:
-    return name.strip().lower().replace("-", "_").replace(" ", "_")
 
 
 def species_column_name(prefix: str, species: str) -> str:
@@ -83,158 +67,9 @@ def species_column_name(prefix: str, species: str) -> str:
 # reading
 # ---------------------------------------------------------------------------------------------------
 
-def _read_text(path: Path) -> str:
-    if not path.exists():
-        raise FileNotFoundError(f"model file {path} does not exist")
-    if path.is_dir():
-        raise IsADirectoryError(f"model file {path} is a directory")
-    size = path.stat().st_size
-    if size > MAX_MODEL_BYTES:
-        raise ValueError(f"model file {path} is {size / 1e6:.0f} MB; a depth structure should be far smaller")
-    try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise OSError(f"cannot read model file {path}: {exc.strerror or exc}") from None
-    if b"\x00" in raw:
-        raise ValueError(f"model file {path} is not a text file (it contains NUL bytes)")
-    try:
-        return raw.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise ValueError(f"model file {path} is not UTF-8 text (byte {exc.start})") from None
 
 
-def read_model(path) -> "Table":  # noqa: F821
-    """Read a depth structure into an astropy Table.
 
-    Known columns (temperature, the state variables, electron_density) get
-    cgs units: converted from the file's units for ECSV, assumed cgs for plain
-    text.  Other columns are kept as they are.  Row order is kept.
-
-    Raises
-    ------
-    FileNotFoundError, ValueError
-        With a message naming the file, line and column of the problem.
-    """
-    from astropy.table import Table
-
-    path = Path(path)
-    text = _read_text(path)
-    first = next((ln for ln in text.splitlines() if ln.strip()), "")
-    if not first:
-        raise ValueError(f"model file {path} is empty")
-    if first.lstrip().startswith("# %ECSV"):
-        t = _read_ecsv(path, text)
-    else:
-        t = _read_plain(path, text)
-    if len(t) == 0:
-        raise ValueError(f"model file {path} has a header but no data rows")
-    t.meta["ionbal_model_file"] = str(path)
-    return t
-
-
-def _read_ecsv(path: Path, text: str):
-    import astropy.units as u
-    from astropy.table import Table
-
-    try:
-        t = Table.read(text, format="ascii.ecsv")
-    except Exception as exc:  # noqa: BLE001 - astropy raises many kinds; report one line
-        msg = str(exc).strip().splitlines()
-        raise ValueError(f"cannot read ECSV model file {path}: {msg[0] if msg else type(exc).__name__}") from None
-    t = Table(t, masked=False, copy=False) if not t.has_masked_columns else t
-    seen = {}
-    for name in t.colnames:
-        c = _canon(name)
-        if c in seen:
-            raise ValueError(f"model file {path}: columns {seen[c]!r} and {name!r} have the same name")
-        seen[c] = name
-    for name in list(t.colnames):
-        c = _canon(name)
-        if c not in MODEL_UNITS:
-            continue
-        col = t[name]
-        if getattr(col, "mask", None) is not None and np.any(col.mask):
-            i = int(np.flatnonzero(col.mask)[0])
-            raise ValueError(f"model file {path}: column {name} has a missing value at data row {i + 1}")
-        if col.dtype.kind not in "fiu":
-            raise ValueError(f"model file {path}: column {name} must be numeric, it has type {col.dtype}")
-        target = u.Unit(MODEL_UNITS[c])
-        values = np.asarray(col, dtype=np.float64)
-        if col.unit is not None and col.unit != u.dimensionless_unscaled:
-            try:
-                values = (values * col.unit).to_value(target)
-            except u.UnitConversionError:
-                raise ValueError(f"model file {path}: column {name} has unit '{col.unit}', which does not "
-                                 f"convert to {target}") from None
-        t[name] = values
-        t[name].unit = target
-    return t
-
-
-def _split(line: str, comma: bool) -> list[str]:
-    if comma:
-        return [f.strip().strip('"').strip("'") for f in line.split(",")]
-    return line.split()
-
-
-def _read_plain(path: Path, text: str):
-    import astropy.units as u
-    from astropy.table import Table
-
-    lines = [(i + 1, ln) for i, ln in enumerate(text.splitlines())]
-    body = [(n, ln) for n, ln in lines if ln.strip() and not ln.lstrip().startswith("#")]
-    if not body:
-        raise ValueError(f"model file {path} has no header line naming its columns")
-    hline, header = body[0]
-    comma = "," in header
-    names = _split(header, comma)
-    if any(not n for n in names):
-        raise ValueError(f"model file {path}, line {hline}: empty column name in the header")
-    seen = {}
-    for n in names:
-        c = _canon(n)
-        if c in seen:
-            raise ValueError(f"model file {path}, line {hline}: column {n!r} appears twice in the header")
-        seen[c] = n
-    try:
-        [float(n) for n in names]
-        all_numbers = True
-    except ValueError:
-        all_numbers = False
-    if all_numbers:
-        raise ValueError(f"model file {path}, line {hline}: the first line holds numbers, not column names; "
-                         "the header must name the columns (e.g. 'depth temperature gas_pressure')")
-    rows = []
-    line_numbers = []
-    for n, ln in body[1:]:
-        fields = _split(ln, comma)
-        if len(fields) != len(names):
-            raise ValueError(f"model file {path}, line {n}: {len(fields)} values for {len(names)} columns "
-                             f"({', '.join(names)})")
-        rows.append(fields)
-        line_numbers.append(n)
-    if not rows:
-        raise ValueError(f"model file {path} has a header but no data rows")
-    cols = list(zip(*rows))
-    t = Table()
-    for name, values in zip(names, cols):
-        c = _canon(name)
-        try:
-            arr = np.array([float(v) for v in values], dtype=np.float64)
-        except ValueError:
-            if c in MODEL_UNITS:
-                for v, n in zip(values, line_numbers):
-                    try:
-                        float(v)
-                    except ValueError:
-                        raise ValueError(f"model file {path}, line {n}: {name} value {v!r} is not a "
-                                         "number") from None
-            arr = np.array(values, dtype=str)
-        t[name] = arr
-        if c in MODEL_UNITS:
-            t[name].unit = u.Unit(MODEL_UNITS[c])
-    t.meta["line_numbers"] = line_numbers
-    return t
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -361,18 +196,18 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     tname = _find(table, "temperature")
     if tname is None:
         raise ValueError(f"the model has no temperature column; it has {', '.join(table.colnames)}; "
-                         f"name the columns temperature and one of {', '.join(STATE_AXES)}")
-    present = [s for s in STATE_AXES if _find(table, s) is not None]
+                         f"name the columns temperature and one of {', '.join(STATE_INPUTS)}")
+    present = [s for s in STATE_INPUTS if _find(table, s) is not None]
     if state is not None:
-        if state not in STATE_AXES:
-            raise ValueError(f"state column must be one of {', '.join(STATE_AXES)}, got {state!r}")
+        if state not in STATE_INPUTS:
+            raise ValueError(f"state column must be one of {', '.join(STATE_INPUTS)}, got {state!r}")
         if state not in present:
             raise ValueError(f"the model has no {state} column; it has {', '.join(table.colnames)}")
         sv = state
     elif present:
         sv = present[0]
     else:
-        raise ValueError(f"the model needs one of the columns {', '.join(STATE_AXES)} besides temperature; "
+        raise ValueError(f"the model needs one of the columns {', '.join(STATE_INPUTS)} besides temperature; "
                          f"it has {', '.join(table.colnames)}")
     sname = _find(table, sv)
     T = np.asarray(table[tname], dtype=np.float64)
@@ -383,14 +218,12 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
             i = int(np.flatnonzero(bad)[0])
             raise ValueError(f"{name} at {_where(table, i)} is {float(arr[i])!r}; it must be a finite positive "
                              "number")
-    from .data.tables import partition_grid
-
-    g = partition_grid()
-    out = (T < g.T_min * (1 - 1e-12)) | (T > g.T_max * (1 + 1e-12))
+    out = outside_temperature_range(T)
     if out.any():
         i = int(np.flatnonzero(out)[0])
+        t_lo, t_hi = table_temperature_range()
         raise ValueError(f"temperature {T[i]:g} K at {_where(table, i)} is outside the partition-function "
-                         f"tables ({g.T_min:.4g}-{g.T_max:.4g} K)")
+                         f"tables ({t_lo:.4g}-{t_hi:.4g} K)")
     sp_names = resolve_species(mix, species)
     r = solve(T, mixture=mix, errors="mask", **{sv: X})
     status = np.asarray(r.status)
@@ -399,7 +232,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         raise ValueError(f"no converged solution at {_where(table, i)} (T={T[i]:g} K, {sv}={X[i]:g}): "
                          f"{r.message[i]}")
 
-    outputs = {name: unit for name, unit in _OUTPUTS if name != sv}
+    outputs = [name for name in POINT_OUTPUTS if name != sv]
     res = Table(meta={k: v for k, v in table.meta.items() if k != "line_numbers"})
     for name in table.colnames:
         c = _canon(name)
@@ -407,17 +240,16 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         if c in outputs or c in ("status", "iterations", "validity") or c.startswith(("fraction_", "number_density_")):
             new = f"input_{name}"
         res[new] = table[name]
-    for name, unit in outputs.items():
-        res[name] = np.asarray(getattr(r, name), dtype=np.float64)
-        if unit:
-            res[name].unit = unit
+    for name in outputs:
+        res[name] = np.asarray(r[name], dtype=np.float64)
+        if QUANTITIES[name].unit not in ("", "1"):
+            res[name].unit = astropy_unit(name)
     res["status"] = status.astype(np.int8)
     res["iterations"] = np.asarray(r.iterations, dtype=np.int32)
-    with contextlib.suppress(ImportError, AttributeError):
-        from .validity import bitmask
+    from .validity import bitmask
 
-        res["validity"] = np.asarray(bitmask(r.validity), dtype=np.uint8)
-        res["validity"].description = "validity flags of ideal-gas LTE Saha (bitmask, see ionbal.validity)"
+    res["validity"] = np.asarray(bitmask(r.validity), dtype=np.uint8)
+    res["validity"].description = "validity flags of ideal-gas LTE Saha (bitmask, see ionbal.validity)"
 
     comparisons = []
     for q in _COMPARED:
@@ -435,13 +267,8 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         res[f"{q}_deviation_percent"] = pct
         res[f"{q}_deviation_dex"] = dex
 
-    frac = species_fractions(r, sp_names).reshape(len(sp_names), len(T))
-    weights = dict(zip(mix.elements, mix.number_fractions))
-    nuclei = np.asarray(r.nuclei_density, dtype=np.float64)
-    dens = np.empty_like(frac)
-    with np.errstate(under="ignore"):
-        for k, name in enumerate(sp_names):
-            dens[k] = frac[k] * nuclei * weights[name.split()[0].rstrip("-")]
+    frac = r.species_fractions(sp_names).reshape(len(sp_names), len(T))
+    dens = r.number_densities(sp_names, fractions=frac).reshape(len(sp_names), len(T))
     for k, name in enumerate(sp_names):
         res[species_column_name("fraction", name)] = frac[k]
     for k, name in enumerate(sp_names):
@@ -458,31 +285,11 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
 # writing
 # ---------------------------------------------------------------------------------------------------
 
-def _format_of(path: Path) -> str:
-    ext = path.suffix.lower()
-    if ext in (".ecsv", ".txt", ".csv"):
-        if ext != ".ecsv":
-            raise ValueError(f"output {path}: column results are written as ECSV (.ecsv) or HDF5 (.h5, .hdf5, "
-                             ".nc)")
-        return "ecsv"
-    if ext in (".h5", ".hdf5", ".nc", ".he5"):
-        return "hdf5"
-    raise ValueError(f"output {path}: unknown extension {ext or '(none)'}; use .ecsv or .h5")
-
 
 def check_output(path, *, overwrite: bool = False) -> str:
     """Check that a column result can be written to ``path``; returns its format ("ecsv" or "hdf5")."""
-    path = Path(path)
-    fmt = _format_of(path)
-    if path.is_dir():
-        raise IsADirectoryError(f"output {path} is a directory")
-    if path.exists() and not overwrite:
-        raise FileExistsError(f"output {path} already exists; pass --overwrite to replace it")
-    parent = path.parent if str(path.parent) else Path(".")
-    if not parent.is_dir():
-        raise FileNotFoundError(f"cannot write {path}: directory {parent} does not exist")
-    if not os.access(parent, os.W_OK | os.X_OK):
-        raise PermissionError(f"cannot write {path}: directory {parent} is not writable")
+    fmt = format_of(path)
+    check_output_path(path, overwrite=overwrite)
     return fmt
 
 
@@ -492,8 +299,6 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
     An existing file is replaced only with ``overwrite`` and only once the new
     one is complete.
     """
-    from . import __version__
-    from .io import atomic_output, data_sources, write_table_file
 
     path = Path(path)
     fmt = check_output(path, overwrite=overwrite)
@@ -514,8 +319,7 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
         if name in sp_cols:
             continue
         col = result.table[name]
-        unit = None if col.unit is None else col.unit.to_string().replace("1 / cm3", "cm-3") \
-            .replace("dyn / cm2", "dyn cm-2").replace("g / cm3", "g cm-3")
+        unit = None if col.unit is None else _unit_string(col.unit)
         cols[name] = (np.asarray(col), unit, None)
     attrs = {
         "title": "ionbal LTE ionization balance of a model-atmosphere column",
@@ -529,6 +333,14 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
                      cubes={"ion_fraction": result.fractions, "number_density": result.number_densities},
                      attrs=attrs, overwrite=overwrite)
     return path
+
+
+def _unit_string(unit) -> str:
+    """The ``units`` attribute of a column in an HDF5 file: the registry's spelling (``"dyn cm-2"``)."""
+    for q in QUANTITIES.values():
+        if q.unit not in ("", "1") and astropy_unit(q.unit) == unit:
+            return q.unit
+    return unit.to_string()
 
 
 def default_output(model_path) -> Path:

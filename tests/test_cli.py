@@ -106,19 +106,19 @@ def test_grid_resumes_after_interruption(in_tmp, capsys, monkeypatch):
             raise KeyboardInterrupt
         return real(task)
 
-    monkeypatch.setattr(G, "compute_tile", flaky)
+    monkeypatch.setattr(G.compute, "compute_tile", flaky)
     code, out, err = run(capsys, "grid", *SMALL, "--tile-size", "6", "-o", "r.h5")
     assert code == 130 and "interrupted" in err and "r.h5.parts" in err and "resume" in err
     assert not (in_tmp / "r.h5").exists()
-    monkeypatch.setattr(G, "compute_tile", real)
+    monkeypatch.setattr(G.compute, "compute_tile", real)
     args = [a for a in SMALL if a != "-q"]
     code, out, err = run(capsys, "grid", *args, "--tile-size", "6", "-o", "r.h5")
     assert code == 0 and "resuming: 2 of" in err and "2 resumed" in out
     # a different grid on the same output: refused while its parts exist
     calls["n"] = 0
-    monkeypatch.setattr(G, "compute_tile", flaky)
+    monkeypatch.setattr(G.compute, "compute_tile", flaky)
     run(capsys, "grid", *SMALL, "--tile-size", "6", "-o", "s.h5")
-    monkeypatch.setattr(G, "compute_tile", real)
+    monkeypatch.setattr(G.compute, "compute_tile", real)
     code, out, err = run(capsys, "grid", *SMALL, "--tile-size", "5", "-o", "s.h5")
     assert_clean_error(code, err, "different grid", "--discard-parts")
     code, out, err = run(capsys, "grid", *SMALL, "--tile-size", "5", "-o", "s.h5", "--discard-parts")
@@ -281,7 +281,7 @@ def no_computing(monkeypatch):
         started.append(task)
         raise KeyboardInterrupt
 
-    monkeypatch.setattr(G, "compute_tile", refuse)
+    monkeypatch.setattr(G.compute, "compute_tile", refuse)
     return started
 
 

@@ -260,7 +260,7 @@ def _interrupt_after(monkeypatch, n):
         calls["n"] += 1
         return real(task)
 
-    monkeypatch.setattr(G, "compute_tile", flaky)
+    monkeypatch.setattr(G.compute, "compute_tile", flaky)
     return real
 
 
@@ -280,7 +280,7 @@ def test_interrupt_and_resume_is_bitwise_identical(tmp_path, monkeypatch):
     assert not out.exists()
     parts = G.parts_dir_for(out)
     assert len(list(parts.glob("tile-*.npz"))) == 3 and (parts / "spec.json").exists()
-    monkeypatch.setattr(G, "compute_tile", real)
+    monkeypatch.setattr(G.compute, "compute_tile", real)
     notes = []
     run = run_grid(small_spec(), out, progress=False, notify=notes.append)
     assert run.tiles_resumed == 3 and any("resuming" in n for n in notes)
@@ -294,7 +294,7 @@ def test_mismatching_parts_are_refused(tmp_path, monkeypatch):
     real = _interrupt_after(monkeypatch, 2)
     with pytest.raises(KeyboardInterrupt):
         run_grid(small_spec(), out, progress=False)
-    monkeypatch.setattr(G, "compute_tile", real)
+    monkeypatch.setattr(G.compute, "compute_tile", real)
     other = small_spec(temperature=Axis.log("temperature", 3500.0, 9000.0, 10))
     with pytest.raises(GridMismatchError, match="temperature"):
         run_grid(other, out, progress=False)
@@ -309,7 +309,7 @@ def test_damaged_part_is_recomputed(tmp_path, monkeypatch, capsys):
     real = _interrupt_after(monkeypatch, 3)
     with pytest.raises(KeyboardInterrupt):
         run_grid(small_spec(), out, progress=False)
-    monkeypatch.setattr(G, "compute_tile", real)
+    monkeypatch.setattr(G.compute, "compute_tile", real)
     part = sorted(G.parts_dir_for(out).glob("tile-*.npz"))[1]
     part.write_bytes(part.read_bytes()[:100])  # a disk error after the fact
     run_grid(small_spec(), out, progress=False)

@@ -1,0 +1,225 @@
+"""The run: :func:`run_grid` computes a grid resumably and publishes the file; :class:`GridRun` reports it."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import shutil
+import sys
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable, Iterator, Sequence
+
+import numpy as np
+
+from ..core import status as st
+from ..io.atomic import atomic_output, fsync_dir as _fsync_dir
+from ..io.gridfile import write_grid_file
+from ..io.reader import read_attr_json
+from ..selection import all_species, default_species
+from ..validate import check_output_path
+from . import compute as _compute
+from .executors import EXECUTORS, dask_client, numba_threads as _numba_threads
+from .progress import Progress
+from .spec import GridSpec, Tile, TileTask
+from .workdir import WorkDir, parts_dir_for
+
+__all__ = ["GridRun", "run_grid", "DEFAULT_OUTPUT"]
+
+
+#: plain name of the default output file (in the current directory)
+DEFAULT_OUTPUT = "ionbal-grid.h5"
+
+
+@dataclass
+class GridRun:
+    """What a finished :func:`run_grid` did."""
+
+    path: Path
+    spec: GridSpec
+    n_points: int
+    n_tiles: int
+    tiles_resumed: int
+    points_computed: int
+    wall_time: float
+    compute_time: float
+    write_time: float
+    file_size: int
+    status_counts: dict = field(default_factory=dict)
+    validity_counts: dict = field(default_factory=dict)
+
+    @property
+    def points_per_second(self) -> float:
+        """Points computed in this run per second of wall time (resumed tiles excluded)."""
+        return self.points_computed / self.wall_time if self.wall_time > 0 else float("nan")
+
+    @property
+    def converged(self) -> int:
+        return int(self.status_counts.get(st.STATUS_TABLE[st.OK][0], 0))
+
+    def summary(self) -> str:
+        """A few readable lines."""
+        size = self.file_size
+        size_s = f"{size / 1e9:.2f} GB" if size >= 1e9 else f"{size / 1e6:.1f} MB"
+        sp = self.spec
+        n_el = len(sp.mixture)
+        lines = [f"ionbal grid: wrote {self.path} ({size_s})"]
+        lines += ["  " + ln for ln in sp.describe()]
+        lines.append(f"  species     {len(sp.species)} ({_species_summary(sp, n_el)})"
+                     + (", with number densities" if sp.number_densities else "")
+                     + (", float32 cubes" if sp.float32 else ""))
+        lines.append(f"  points      {self.n_points:,} in {self.n_tiles} tiles of up to "
+                     f"{sp.tile_shape[0]}x{sp.tile_shape[1]}"
+                     + (f" ({self.tiles_resumed} resumed from an earlier run)" if self.tiles_resumed else ""))
+        lines.append(f"  wall time   {self.wall_time:.1f} s (solving {self.compute_time:.1f} s, writing "
+                     f"{self.write_time:.1f} s); {self.points_per_second:,.0f} points/s")
+        counts = ", ".join(f"{k} {v:,}" for k, v in self.status_counts.items() if k != "ok" and v)
+        lines.append(f"  converged   {self.converged:,} of {self.n_points:,}" + (f"  (other: {counts})" if counts
+                                                                                   else ""))
+        flagged = {k: v for k, v in self.validity_counts.items() if v and k != "unsolved"}
+        if self.validity_counts:
+            lines.append("  validity    " + (", ".join(f"{k} {v:,}" for k, v in flagged.items()) + " point(s) "
+                                            "flagged (ideal-gas LTE Saha doubtful there; see ionbal.validity)"
+                                            if flagged else "no point flagged"))
+        return "\n".join(lines)
+
+
+def _species_summary(spec: GridSpec, n_el: int) -> str:
+    if tuple(spec.species) == default_species(spec.mixture):
+        return f"stages I-III of {n_el} elements, and H-"
+    if tuple(spec.species) == all_species(spec.mixture):
+        return f"every stage of {n_el} elements, and H-"
+    shown = list(spec.species[:6])
+    return ", ".join(shown) + (", ..." if len(spec.species) > 6 else "")
+
+
+def run_grid(spec: GridSpec, output: str | os.PathLike = DEFAULT_OUTPUT, *, overwrite: bool = False,
+             discard_parts: bool = False, executor: str | None = None, workers: int | None = None,
+             scheduler: str | None = None, local_cluster: bool = False, progress: bool | None = None,
+             command: str | None = None, keep_parts: bool = False,
+             notify: Callable[[str], None] | None = None) -> GridRun:
+    """Compute a grid into an HDF5 file, resumably.
+
+    Parameters
+    ----------
+    spec : GridSpec
+        What to compute.
+    output : path
+        The HDF5 file to write.  It appears only when complete.
+    overwrite : bool
+        Replace an existing ``output`` (kept untouched until the new file is
+        complete).  Without it an existing file is an error.
+    discard_parts : bool
+        Start over when ``<output>.parts`` holds the parts of a different grid
+        (otherwise that is an error).  Matching parts are always resumed.
+    executor : {"serial", "threads", "dask"}, optional
+        Default: "dask" when ``scheduler`` or ``local_cluster`` is given, else "serial".
+    workers : int, optional
+        serial: numba threads (default all cores); threads: pool size;
+        local Dask cluster: worker processes (one thread each).
+    scheduler : str, optional
+        Address of a running Dask scheduler (e.g. ``tcp://10.0.0.5:8786``).
+    local_cluster : bool
+        Start a local Dask cluster of ``workers`` processes on 127.0.0.1.
+    progress : bool, optional
+        Draw a progress bar on stderr; default: only when stderr is a terminal.
+    command : str, optional
+        The command or call that made the file (stored in its ``history``).
+    keep_parts : bool
+        Keep the work directory after writing (for debugging).
+    notify : callable, optional
+        Called with one-line notes (resuming, writing).
+
+    Returns
+    -------
+    GridRun
+    """
+    if not isinstance(spec, GridSpec):
+        raise TypeError(f"spec must be a GridSpec, got {type(spec).__name__}")
+    t_start = time.monotonic()
+    output = Path(output)
+    check_output_path(output, overwrite=overwrite)
+    if executor is None:
+        executor = "dask" if (scheduler or local_cluster) else "serial"
+    if executor not in EXECUTORS:
+        raise ValueError(f"executor must be one of {', '.join(repr(e) for e in EXECUTORS)}, got {executor!r}")
+    if executor == "dask" and not (scheduler or local_cluster):
+        raise ValueError("the Dask executor needs a scheduler address or local_cluster=True")
+    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, (int, np.integer))
+                                or workers < 1):
+        raise ValueError(f"workers must be a positive integer, got {workers!r}")
+    if command is None:
+        command = "ionbal.grid.run_grid(...) from " + (" ".join(sys.argv) or "python")
+
+    work = WorkDir(parts_dir_for(output), spec)
+    created = not work.path.exists()
+    for stale in work.path.parent.glob(f".{work.path.name}.removing-*"):  # left by a kill during cleanup
+        shutil.rmtree(stale, ignore_errors=True)
+    tiles = spec.tiles()
+    compute_time = 0.0
+    try:
+        work.open(discard=discard_parts)
+        done = work.finished() & set(range(len(tiles)))
+        todo = [t for t in tiles if t.index not in done]
+        if done and notify:
+            notify(f"resuming: {len(done)} of {len(tiles)} tiles were already computed in {work.path}")
+        bar = Progress(spec.n_points, enabled=progress)
+        bar.skip(sum(tiles[i].size for i in done))
+        t_compute = time.monotonic()
+        try:
+            if todo:
+                stream = EXECUTORS[executor](lambda threads: _lazy_tasks(spec, todo, threads), workers=workers,
+                                             scheduler=scheduler, local_cluster=local_cluster)
+                with contextlib.closing(stream):
+                    _consume(stream, work, bar)
+        finally:
+            bar.close()
+        compute_time = time.monotonic() - t_compute
+        points_computed = sum(t.size for t in todo)
+
+        t_write = time.monotonic()
+        if notify and todo:
+            notify(f"writing {output}")
+        # published with the lock of the work directory held; the file appears only when complete
+        with atomic_output(output, tmp=work.path / "assembling.h5") as tmp:
+            counts = write_grid_file(tmp, spec, _tile_stream(work, spec, tiles), command=command)
+            vcounts = read_attr_json(tmp, "validity_counts")
+        _fsync_dir(output.parent if str(output.parent) else Path("."))
+        write_time = time.monotonic() - t_write
+    except BaseException:
+        if created and work.path.is_dir() and not work.finished():
+            work.remove()  # nothing worth keeping: leave no trace of this run
+        else:
+            work.close()
+        raise
+    if keep_parts:
+        work.close()
+    else:
+        work.remove()
+    return GridRun(path=output, spec=spec, n_points=spec.n_points, n_tiles=len(tiles),
+                   tiles_resumed=len(tiles) - len(todo), points_computed=points_computed,
+                   wall_time=time.monotonic() - t_start, compute_time=compute_time, write_time=write_time,
+                   file_size=output.stat().st_size, status_counts=counts, validity_counts=vcounts)
+
+
+def _lazy_tasks(spec: GridSpec, tiles: Sequence[Tile], numba_threads: int | None = None) -> Iterator[TileTask]:
+    for t in tiles:
+        yield spec.task(t, numba_threads)
+
+
+def _consume(stream: Iterator[tuple[Tile, dict]], work: WorkDir, bar: Progress) -> None:
+    for tile, arrays in stream:
+        work.save(tile, arrays)
+        bar.update(tile.size)
+
+
+def _tile_stream(work: WorkDir, spec: GridSpec, tiles: Sequence[Tile]) -> Iterator[tuple[Tile, dict]]:
+    """Finished tiles in order, one at a time; a missing or damaged one is recomputed here."""
+    for tile in tiles:
+        data = work.load(tile)
+        if data is None:
+            data = _compute.compute_tile(spec.task(tile))
+            work.save(tile, data)
+        yield tile, data
+

@@ -1,0 +1,89 @@
+"""Provenance of files: the data tables used (title, sources, SHA-256), the history line, the assumptions."""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import json
+from functools import lru_cache
+from typing import Any, Mapping
+
+from .._version import __version__
+
+__all__ = ["data_sources", "history", "references_text", "ASSUMPTIONS"]
+
+
+@lru_cache(maxsize=1)
+def _data_sources_cached() -> str:
+    from importlib import resources
+
+    out = {}
+    try:
+        root = resources.files("ionbal.tables")
+        names = sorted(p.name for p in root.iterdir() if p.name.endswith(".ecsv"))
+    except (ModuleNotFoundError, FileNotFoundError, OSError):  # pragma: no cover - broken install
+        return json.dumps({})
+    for name in names:
+        raw = root.joinpath(name).read_bytes()
+        info: dict[str, Any] = {"sha256": hashlib.sha256(raw).hexdigest()}
+        header = []
+        for line in raw.decode("utf-8", errors="replace").splitlines():
+            if not line.startswith("#"):
+                break
+            header.append(line[2:] if line.startswith("# ") else line[1:])
+        try:
+            from astropy.table.meta import get_header_from_yaml
+
+            meta = get_header_from_yaml(header).get("meta", {}) or {}
+        except Exception:  # noqa: BLE001 - provenance is informative; never fail a run on it
+            meta = {}
+        for key in ("title", "source", "generated_by"):
+            if key in meta:
+                info[key] = _jsonable(meta[key])
+        out[name] = info
+    return json.dumps(out, sort_keys=True)
+
+
+def _jsonable(obj):
+    if isinstance(obj, Mapping):
+        return {str(k): _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_jsonable(v) for v in obj]
+    if isinstance(obj, (str, int, float, bool)) or obj is None:
+        return obj
+    return str(obj)
+
+
+def data_sources() -> dict:
+    """The data tables of this installation: per file its title, sources and SHA-256.
+
+    Read from the provenance headers of the packaged ECSV tables.
+    """
+    return json.loads(_data_sources_cached())
+
+
+def _references_text(sources: Mapping) -> str:
+    lines = []
+    for name, info in sources.items():
+        src = info.get("source")
+        if isinstance(src, Mapping):
+            src = "; ".join(f"{k}: {v}" for k, v in src.items())
+        elif isinstance(src, list):
+            src = "; ".join(str(s) for s in src)
+        if src:
+            lines.append(f"{name}: {src}")
+    return "\n".join(lines)
+
+
+def _history(command: str | None) -> str:
+    now = _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
+    return f"{now} {command or 'ionbal'} (ionbal {__version__})"
+
+
+_ASSUMPTIONS = ("LTE ionization balance (Saha equation for every stage, H- included) with charge and "
+                "nuclei conservation; ideal, non-degenerate gas; atoms and atomic ions only (no molecules).")
+
+
+history = _history
+references_text = _references_text
+ASSUMPTIONS = _ASSUMPTIONS
