@@ -42,6 +42,30 @@ _ERRORS = ("raise", "mask")
 SERIAL_POINTS = 16
 
 
+def _nuclei_from_hydrogen(value, packed):
+    wh = packed.hydrogen_weight
+    if wh <= 0:
+        raise ValueError("hydrogen_density was given, but the mixture has no hydrogen; "
+                         "use gas_pressure or mass_density")
+    return MODE_NUCLEI_DENSITY, value / wh
+
+
+def _nuclei_from_mass(value, packed):
+    with np.errstate(over="ignore"):
+        return MODE_NUCLEI_DENSITY, value / packed.mean_mass
+
+
+#: state input -> (value, packed) -> (kernel mode, the value the kernel takes); one entry per
+#: state input of the quantity registry
+_KERNEL_INPUTS = {
+    "gas_pressure": lambda value, packed: (MODE_GAS_PRESSURE, value),
+    "electron_pressure": lambda value, packed: (MODE_ELECTRON_PRESSURE, value),
+    "hydrogen_density": _nuclei_from_hydrogen,
+    "mass_density": _nuclei_from_mass,
+}
+assert set(_KERNEL_INPUTS) == set(STATE_INPUTS), "every state input of the registry needs a kernel mode"
+
+
 def default_mixture() -> Mixture:
     """The default mixture: the AGSS09 solar set."""
     return Mixture.solar("AGSS09")
@@ -168,19 +192,7 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
             raise ValueError(f"temperature {v:g} K{where} is outside the tabulated range "
                              f"{t_lo:.4g}-{t_hi:.4g} K")
 
-    if var == "gas_pressure":
-        mode, kval = MODE_GAS_PRESSURE, v_b
-    elif var == "electron_pressure":
-        mode, kval = MODE_ELECTRON_PRESSURE, v_b
-    elif var == "hydrogen_density":
-        wh = packed.hydrogen_weight
-        if wh <= 0:
-            raise ValueError("hydrogen_density was given, but the mixture has no hydrogen; "
-                             "use gas_pressure or mass_density")
-        mode, kval = MODE_NUCLEI_DENSITY, v_b / wh
-    else:
-        with np.errstate(over="ignore"):
-            mode, kval = MODE_NUCLEI_DENSITY, v_b / packed.mean_mass
+    mode, kval = _KERNEL_INPUTS[var](v_b, packed)
 
     # the density scale the kernel works with must be representable
     with np.errstate(over="ignore", divide="ignore", invalid="ignore"):

@@ -19,7 +19,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .quantities import QUANTITIES
+from .quantities import QUANTITIES, STATE_INPUTS
 
 __all__ = ["main", "build_parser", "CLIError"]
 
@@ -74,7 +74,7 @@ def mixture_from_args(args: argparse.Namespace):
 
 
 #: (name, flag, short flag, help) of every state input, from the quantity registry
-STATE_OPTIONS = tuple((q.name, q.flag, q.short_flag, q.help) for q in QUANTITIES.values() if q.state_input)
+STATE_OPTIONS = tuple((n, QUANTITIES[n].flag, QUANTITIES[n].short_flag, QUANTITIES[n].help) for n in STATE_INPUTS)
 
 
 # ---------------------------------------------------------------------------------------------------

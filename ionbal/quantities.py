@@ -8,7 +8,7 @@ Every quantity ionbal takes or gives is declared here once, as a :class:`Quantit
 * a short label (messages, CLI help) and a long name (the ``long_name`` of files),
 * its kind: ``"state"`` (temperature, which every state has), ``"point"`` (one value per point),
   ``"species"`` (one value per species and point), ``"axis"`` or ``"label"`` (file coordinates),
-* whether it can be the second state input (``state_input``, with its CLI flag), and
+* whether it can be the second state input (``state_input``: its rank of preference, with its CLI flag), and
 * for outputs, how it is computed from a solved state (``compute``, see :class:`SolvedState`).
 
 :func:`ionbal.solve`, :class:`ionbal.result.IonizationResult`, the grid writer and reader, the
@@ -68,7 +68,7 @@ class Quantity:
     label: str
     long_name: str
     kind: str = "point"
-    state_input: bool = False
+    state_input: int = 0
     flag: str | None = None
     short_flag: str | None = None
     compute: Callable[[SolvedState], np.ndarray] | None = None
@@ -91,23 +91,23 @@ def _q(*args, **kw) -> Quantity:
 #: every quantity, in the order files and tables list them
 QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
     _q("temperature", "K", "temperature", "temperature", kind="state"),
-    # --- state inputs (the second state variable); the order is the order of preference
+    # --- per-point outputs, in file order; state_input=k makes one a possible second state input
+    #     (k = order of preference when a model has several such columns)
+    _q("electron_density", "cm-3", "free-electron number density", "free-electron number density",
+       compute=lambda s: s.ne),
+    _q("electron_pressure", "dyn cm-2", "electron pressure", "electron pressure",
+       state_input=4, flag="--electron-pressure", short_flag="-e",
+       compute=lambda s: s.ne * s.kT),
     _q("gas_pressure", "dyn cm-2", "gas pressure", "gas pressure (ideal gas: nuclei and free electrons)",
-       state_input=True, flag="--gas-pressure", short_flag="-P",
+       state_input=1, flag="--gas-pressure", short_flag="-P",
        compute=lambda s: (s.nn + s.ne) * s.kT),
     _q("mass_density", "g cm-3", "mass density", "mass density",
-       state_input=True, flag="--mass-density", short_flag="-r",
+       state_input=2, flag="--mass-density", short_flag="-r",
        compute=lambda s: s.nn * s.packed.mean_mass),
     _q("hydrogen_density", "cm-3", "number density of hydrogen nuclei",
        "number density of hydrogen nuclei (H-, H I, H II)",
-       state_input=True, flag="--hydrogen-density", short_flag="-n",
+       state_input=3, flag="--hydrogen-density", short_flag="-n",
        compute=lambda s: s.nn * s.packed.hydrogen_weight),
-    _q("electron_pressure", "dyn cm-2", "electron pressure", "electron pressure",
-       state_input=True, flag="--electron-pressure", short_flag="-e",
-       compute=lambda s: s.ne * s.kT),
-    # --- per-point outputs
-    _q("electron_density", "cm-3", "free-electron number density", "free-electron number density",
-       compute=lambda s: s.ne),
     _q("nuclei_density", "cm-3", "number density of all nuclei",
        "number density of all nuclei (every element and stage)", compute=lambda s: s.nn),
     _q("mean_molecular_weight", "1", "mean molecular weight",
@@ -134,15 +134,14 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
 )}
 
 #: the state variables besides temperature, in order of preference (solve keywords, grid axes, model columns)
-STATE_INPUTS: tuple[str, ...] = tuple(n for n, q in QUANTITIES.items() if q.state_input)
-#: per-point outputs of a solve, in file order (the state inputs are outputs too)
-POINT_OUTPUTS: tuple[str, ...] = ("electron_density", "electron_pressure", "gas_pressure", "mass_density",
-                                  "hydrogen_density", "nuclei_density", "mean_molecular_weight")
+STATE_INPUTS: tuple[str, ...] = tuple(sorted((n for n, q in QUANTITIES.items() if q.state_input),
+                                             key=lambda n: QUANTITIES[n].state_input))
+#: per-point outputs of a solve (every quantity with a formula), in file order; the state inputs are outputs too
+POINT_OUTPUTS: tuple[str, ...] = tuple(n for n, q in QUANTITIES.items() if q.compute is not None)
 #: per-species outputs (cubes of grid files)
 SPECIES_OUTPUTS: tuple[str, ...] = tuple(n for n, q in QUANTITIES.items() if q.kind == "species")
 
-# every quantity with a formula is a per-point output, and every per-point output has a formula
-assert set(POINT_OUTPUTS) == {n for n, q in QUANTITIES.items() if q.compute is not None}
+assert len({QUANTITIES[n].state_input for n in STATE_INPUTS}) == len(STATE_INPUTS), "state_input ranks must differ"
 
 
 def get(name: str) -> Quantity:

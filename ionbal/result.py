@@ -322,8 +322,7 @@ class IonizationResult:
             raise ValueError(f"to_table() needs a 0-D or 1-D result; this one has shape {self.shape}")
         t = QTable()
         t["temperature"] = np.atleast_1d(self.temperature) * astropy_unit("temperature")
-        for name in ("electron_density", "electron_pressure", "gas_pressure", "mass_density",
-                     "hydrogen_density", "nuclei_density", "mean_molecular_weight"):
+        for name in POINT_OUTPUTS:
             t[name] = np.atleast_1d(self[name]) * astropy_unit(name)
         for sp in species or ():
             name = str(parse_species(sp))

@@ -332,6 +332,19 @@ def test_no_module_is_too_long(path):
     assert n <= MAX_MODULE_LINES, f"{path.relative_to(PKG)} has {n} lines (at most {MAX_MODULE_LINES}); split it"
 
 
+def test_every_subpackage_is_installed():
+    # a non-editable install ships only the packages pyproject.toml lists
+    text = (PKG.parent / "pyproject.toml").read_text(encoding="utf-8")
+    listed = re.search(r"^packages\s*=\s*\[(.*?)\]", text, re.M | re.S)
+    assert listed, "pyproject.toml has no packages list"
+    names = set(re.findall(r'"([^"]+)"', listed.group(1)))
+    for init in PKG.rglob("__init__.py"):
+        if "__pycache__" in init.parts:
+            continue
+        dotted = ".".join(init.parent.relative_to(PKG.parent).parts)
+        assert dotted in names, f"{dotted} is missing from the packages of pyproject.toml"
+
+
 def test_layer_map_covers_the_package():
     for path in _py_files(PKG):
         if path.parent == PKG:
