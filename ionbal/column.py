@@ -273,7 +273,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         res[species_column_name("fraction", name)] = frac[k]
     for k, name in enumerate(sp_names):
         res[species_column_name("number_density", name)] = dens[k]
-        res[species_column_name("number_density", name)].unit = "1 / cm3"
+        res[species_column_name("number_density", name)].unit = astropy_unit("number_density")
     res.meta["ionbal_state_variable"] = sv
     res.meta["ionbal_mixture"] = mix.name
     res.meta["ionbal_species"] = list(sp_names)

@@ -20,7 +20,7 @@ from ..io.reader import read_attr_json
 from ..selection import all_species, default_species
 from ..validate import check_output_path
 from . import compute as _compute
-from .executors import EXECUTORS, dask_client, numba_threads as _numba_threads
+from .executors import EXECUTORS
 from .progress import Progress
 from .spec import GridSpec, Tile, TileTask
 from .workdir import WorkDir, parts_dir_for

@@ -189,10 +189,6 @@ class GridFile:
         return "metallicity" in self.axes
 
     @property
-    def complete(self) -> bool:
-        return True  # an incomplete file cannot be opened
-
-    @property
     def mixture(self):
         """The mixture (an :class:`ionbal.Mixture`); for composition grids, the base mixture ([M/H] = 0)."""
         from ..data.mixture import Mixture
