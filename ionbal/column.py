@@ -309,7 +309,7 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
         t.meta["ionbal_data_sources"] = {k: v.get("title", "") for k, v in data_sources().items()}
         for c in result.comparisons:
             t.meta[f"ionbal_comparison_{c.quantity}"] = c.summary()
-        with atomic_output(path) as tmp:
+        with atomic_output(path, overwrite=overwrite) as tmp:
             t.write(tmp, format="ascii.ecsv", overwrite=True)
         return path
     cols = {}

@@ -17,11 +17,16 @@ Runs are resumable.  Each finished tile is saved atomically as a small file in
 a work directory beside the output, ``<output>.parts/``, together with the
 grid specification (``spec.json``).  When all tiles are done the driver
 streams them, one at a time, into the HDF5 file (:mod:`ionbal.io`), which is
-written under a temporary name and renamed into place only when complete;
-then the work directory is removed.  An interrupted run (Ctrl-C, ``kill -9``,
-a lost machine) therefore leaves either nothing, the previous complete file,
-or resumable parts: running the same grid again continues where it stopped
-and gives bitwise the numbers of an uninterrupted run.
+written under a temporary name inside the work directory and renamed into place
+only when complete, with the work directory's lock held; then the work directory
+is removed (Ctrl-C is held off from the rename to that removal).  An existing
+output is replaced only with ``overwrite``, even one that appeared during the
+run (the file is published with a hard link, which fails if the target exists).
+An interrupted run (Ctrl-C, ``kill -9``, a lost machine) therefore leaves either
+nothing, the previous complete file, or resumable parts: running the same grid
+again continues where it stopped and gives bitwise the numbers of an
+uninterrupted run.  Parts left beside a complete file of the same grid (a kill
+between the rename and the cleanup) are removed by the next run.
 
 Executors: ``"serial"`` (the default: tiles one after another; the kernels
 already use every core within a tile), ``"threads"`` (a pool of Python

@@ -5,7 +5,9 @@ from __future__ import annotations
 import contextlib
 import os
 import shutil
+import signal
 import sys
+import threading
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -14,7 +16,8 @@ from typing import Callable, Iterator, Sequence
 import numpy as np
 
 from ..core import status as st
-from ..io.atomic import atomic_output, fsync_dir as _fsync_dir
+from ..io.atomic import fsync_dir as _fsync_dir
+from ..io.atomic import publish
 from ..io.gridfile import write_grid_file
 from ..io.reader import read_attr_json
 from ..selection import all_species, default_species
@@ -23,7 +26,7 @@ from . import compute as _compute
 from .executors import EXECUTORS
 from .progress import Progress
 from .spec import GridSpec, Tile, TileTask
-from .workdir import WorkDir, parts_dir_for
+from .workdir import WorkDir, parts_dir_for, remove_stale_parts
 
 __all__ = ["GridRun", "run_grid", "DEFAULT_OUTPUT"]
 
@@ -139,6 +142,8 @@ def run_grid(spec: GridSpec, output: str | os.PathLike = DEFAULT_OUTPUT, *, over
         raise TypeError(f"spec must be a GridSpec, got {type(spec).__name__}")
     t_start = time.monotonic()
     output = Path(output)
+    if remove_stale_parts(output) and notify:  # left by a run killed between publishing and cleaning up
+        notify(f"removed {parts_dir_for(output)}: it only duplicated the complete {output}")
     check_output_path(output, overwrite=overwrite)
     if executor is None:
         executor = "dask" if (scheduler or local_cluster) else "serial"
@@ -181,26 +186,70 @@ def run_grid(spec: GridSpec, output: str | os.PathLike = DEFAULT_OUTPUT, *, over
         t_write = time.monotonic()
         if notify and todo:
             notify(f"writing {output}")
-        # published with the lock of the work directory held; the file appears only when complete
-        with atomic_output(output, tmp=work.path / "assembling.h5") as tmp:
+        # assembled inside the work directory, published with its lock held: the file appears only when
+        # complete, and an existing output is replaced only with overwrite (even one that appeared
+        # meanwhile).  Ctrl-C is held off from the rename until the work directory is gone, so an
+        # interrupt leaves either resumable parts or the finished file, never both
+        tmp = work.path / "assembling.h5"
+        try:
+            with contextlib.suppress(FileNotFoundError):
+                tmp.unlink()
             counts = write_grid_file(tmp, spec, _tile_stream(work, spec, tiles), command=command)
             vcounts = read_attr_json(tmp, "validity_counts")
-        _fsync_dir(output.parent if str(output.parent) else Path("."))
+            with _interrupts_held(notify):
+                publish(tmp, output, overwrite=overwrite)
+                _fsync_dir(output.parent if str(output.parent) else Path("."))
+                if keep_parts:
+                    work.close()
+                else:
+                    work.remove()
+        except BaseException:
+            with contextlib.suppress(OSError):
+                tmp.unlink()
+            raise
         write_time = time.monotonic() - t_write
-    except BaseException:
+    except BaseException as exc:
         if created and work.path.is_dir() and not work.finished():
             work.remove()  # nothing worth keeping: leave no trace of this run
         else:
             work.close()
+        if not isinstance(exc, KeyboardInterrupt) and _caused_by_interrupt(exc):
+            raise KeyboardInterrupt from exc  # e.g. h5py turned Ctrl-C into an error while writing
         raise
-    if keep_parts:
-        work.close()
-    else:
-        work.remove()
     return GridRun(path=output, spec=spec, n_points=spec.n_points, n_tiles=len(tiles),
                    tiles_resumed=len(tiles) - len(todo), points_computed=points_computed,
                    wall_time=time.monotonic() - t_start, compute_time=compute_time, write_time=write_time,
                    file_size=output.stat().st_size, status_counts=counts, validity_counts=vcounts)
+
+
+def _caused_by_interrupt(exc: BaseException) -> bool:
+    seen = set()
+    e = exc.__context__ or exc.__cause__
+    while e is not None and id(e) not in seen:
+        if isinstance(e, KeyboardInterrupt):
+            return True
+        seen.add(id(e))
+        e = e.__context__ or e.__cause__
+    return False
+
+
+@contextlib.contextmanager
+def _interrupts_held(notify: Callable[[str], None] | None = None):
+    """Hold Ctrl-C (SIGINT) off for the block; one that arrives meanwhile is reported, not raised.
+
+    Only the main thread can change signal handlers; elsewhere the block runs unprotected.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    got = []
+    previous = signal.signal(signal.SIGINT, lambda signum, frame: got.append(signum))
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+    if got and notify:
+        notify("interrupt received while publishing; the grid was already complete and is kept")
 
 
 def _lazy_tasks(spec: GridSpec, tiles: Sequence[Tile], numba_threads: int | None = None) -> Iterator[TileTask]:

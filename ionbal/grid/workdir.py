@@ -16,7 +16,7 @@ import numpy as np
 from ..io.atomic import atomic_output, fsync_dir as _fsync_dir
 from .spec import GridSpec, Tile
 
-__all__ = ["WorkDir", "parts_dir_for", "GridMismatchError", "GridBusyError"]
+__all__ = ["WorkDir", "parts_dir_for", "remove_stale_parts", "GridMismatchError", "GridBusyError"]
 
 _SPEC_FILE = "spec.json"
 _LOCK_FILE = "lock"
@@ -181,6 +181,44 @@ class WorkDir:
                 path.unlink()
             return None
         return data
+
+
+def remove_stale_parts(output: Path) -> bool:
+    """Remove ``<output>.parts`` when it only duplicates the complete grid file ``output``.
+
+    A run killed after publishing its file but before removing its work directory leaves both; the
+    parts are stale when their ``spec.json`` matches the file's spec, version and data tables.
+    Nothing is removed while another process holds the directory's lock.  Returns True if removed.
+    """
+    from ..io.reader import read_fingerprint
+
+    parts = parts_dir_for(output)
+    spec_file = parts / _SPEC_FILE
+    if not (Path(output).is_file() and spec_file.is_file()):
+        return False
+    try:
+        stored = json.loads(spec_file.read_text())
+    except (OSError, ValueError):
+        return False
+    made_of = read_fingerprint(output)
+    if made_of is None or not isinstance(stored, Mapping) or any(stored.get(k) != v for k, v in made_of.items()):
+        return False
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - not POSIX
+        return False
+    with open(parts / _LOCK_FILE, "a+b") as fh:
+        try:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            return False  # a run is using it
+        trash = parts.with_name(f".{parts.name}.removing-{os.getpid()}")
+        try:
+            os.replace(parts, trash)
+        except OSError:
+            return False
+    shutil.rmtree(trash, ignore_errors=True)
+    return True
 
 
 def _describe_mismatch(stored: Mapping, spec: GridSpec) -> str:

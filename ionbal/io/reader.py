@@ -15,7 +15,7 @@ from ..quantities import POINT_OUTPUTS, STATE_INPUTS, astropy_unit
 from . import interpolate as _interp
 from .netcdf import FILE_TYPE_GRID, QUANTITY_UNITS, GridFileError, _attr_str, _h5py, _short
 
-__all__ = ["GridFile", "open_grid", "read_grid", "is_grid_file", "read_attr_json"]
+__all__ = ["GridFile", "open_grid", "read_grid", "is_grid_file", "read_attr_json", "read_fingerprint"]
 
 
 def is_grid_file(path) -> bool:
@@ -454,4 +454,21 @@ def read_attr_json(path, name: str) -> dict:
             return json.loads(_attr_str(f.attrs.get(name)) or "{}")
     except (OSError, ValueError):
         return {}
+
+
+def read_fingerprint(path) -> dict | None:
+    """What a complete grid file was made from: ``{"spec", "ionbal_version", "tables"}`` (as in a work
+    directory's ``spec.json``), or None if ``path`` is not a complete, readable ionbal grid file."""
+    h5py = _h5py()
+    try:
+        with h5py.File(path, "r") as f:
+            a = f.attrs
+            if _attr_str(a.get("ionbal_file_type")) != FILE_TYPE_GRID or int(np.asarray(a.get("ionbal_complete", 0))) != 1:
+                return None
+            sources = json.loads(_attr_str(a.get("data_sources")) or "{}")
+            return {"spec": json.loads(_attr_str(a.get("ionbal_grid_spec")) or "{}"),
+                    "ionbal_version": _attr_str(a.get("ionbal_version")),
+                    "tables": {name: info.get("sha256", "") for name, info in sources.items()}}
+    except (OSError, ValueError, TypeError, AttributeError):
+        return None
 

@@ -9,6 +9,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 
 from .._version import __version__
+from ..validate import check_output_path
 from .atomic import atomic_output
 from .netcdf import FILE_TYPE_COLUMN, FORMAT_VERSION, _coordinate, _h5py, _str_array, _variable
 from .provenance import data_sources
@@ -38,8 +39,7 @@ def write_table_file(path, columns: Mapping[str, tuple], *, species: Sequence[st
     """
     h5py = _h5py()
     path = Path(path)
-    if path.exists() and not overwrite:
-        raise FileExistsError(f"output {path} already exists; pass --overwrite to replace it")
+    check_output_path(path, overwrite=overwrite)
     n = None
     for name, (values, _, _) in columns.items():
         m = len(values)
@@ -48,7 +48,7 @@ def write_table_file(path, columns: Mapping[str, tuple], *, species: Sequence[st
         elif m != n:
             raise ValueError(f"column {name} has {m} rows, expected {n}")
     n = n or 0
-    with atomic_output(path) as tmp:
+    with atomic_output(path, overwrite=overwrite) as tmp:
         with h5py.File(tmp, "w", track_order=True) as f:
             _coordinate(f, dim, np.arange(n, dtype=np.int32), units="1", long_name="index of the depth point "
                         "(0 = first row of the input)")
