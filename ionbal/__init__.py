@@ -33,7 +33,7 @@ __all__ = [
 # name -> (module, attribute), imported on first access (PEP 562)
 _LAZY = {
     "solve": (".api", "solve"),
-    "IonizationResult": (".api", "IonizationResult"),
+    "IonizationResult": (".result", "IonizationResult"),
     "open_grid": (".io", "open_grid"),
     "GridFile": (".io", "GridFile"),
     "is_grid_file": (".io", "is_grid_file"),
