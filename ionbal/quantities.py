@@ -49,7 +49,9 @@ class SolvedState:
     """What every output is computed from: flat arrays of one solve (cgs) and the packed mixture.
 
     ``ne`` and ``nn`` are the free-electron and nuclei densities (NaN where unsolved), ``kT`` is
-    ``k_B T``; ``packed`` is the :class:`ionbal.data.pack.PackedMixture` (weights, masses).
+    ``k_B T``; ``packed`` is the :class:`ionbal.data.pack.PackedMixture` (weights, masses, and the
+    kernels' bundle ``packed.arrays``); ``x`` is ln n_e as the solver returned it, the variable the
+    core kernels take (e.g. ``ion_moments_many(s.temperature, s.x, s.packed.arrays, out)``).
     """
 
     temperature: np.ndarray
@@ -57,6 +59,7 @@ class SolvedState:
     nn: np.ndarray
     kT: np.ndarray
     packed: object
+    x: np.ndarray
 
 
 @dataclass(frozen=True)

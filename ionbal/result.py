@@ -47,7 +47,7 @@ class IonizationResult:
         with np.errstate(over="ignore", invalid="ignore"):
             ne = np.where(good, np.exp(x), np.nan)
             nn = np.where(good, np.exp(ln_nuclei), np.nan)
-        self._state = SolvedState(temperature, ne, nn, K_B * temperature, packed)
+        self._state = SolvedState(temperature, ne, nn, K_B * temperature, packed, x)
         self._flat: dict[str, np.ndarray] = {"temperature": temperature, "iterations": iterations,
                                              "status": status}
         self._logfrac_cache: dict[int, np.ndarray] = {}

@@ -5,8 +5,10 @@
   on its own loads neither astropy nor h5py (fresh subprocess, package ``__init__`` bypassed).
 * numba's compilation settings (jit decorators, cache, parallel, fastmath, the switch that turns
   the JIT off) appear only in ``ionbal/core/config.py``.
-* Imports point down the layers: core <- data <- API <- grid/io/column <- cli; the data layer
+* Imports point down the layers: core <- data <- API <- io <- grid/column <- cli; the data layer
   takes only the constants and the kernels' argument bundle from the core.
+* No import cycle anywhere in ``ionbal/`` (also between modules of one layer, and through imports
+  inside functions); no module longer than 600 lines; every subpackage is in pyproject.toml.
 * The JIT-off switch works: ``IONBAL_DISABLE_JIT=1`` runs the kernels as plain Python with the same
   answers (1e-12).
 """
