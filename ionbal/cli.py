@@ -19,7 +19,7 @@ from typing import Sequence
 
 import numpy as np
 
-from .quantities import QUANTITIES, STATE_INPUTS
+from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, unit_text
 
 __all__ = ["main", "build_parser", "CLIError"]
 
@@ -85,6 +85,18 @@ def _fmt_fraction(f: float) -> str:
     return f"{f:.5f}" if f >= 1e-3 else f"{f:.2e}"
 
 
+def _quantity_lines(value) -> list[str]:
+    """One line per per-point output of the registry: symbol, value, unit."""
+    lines = []
+    for name in POINT_OUTPUTS:
+        q = QUANTITIES[name]
+        if q.unit in ("", "1"):
+            lines.append(f"  {q.symbol or name:<16} {value(name):.6f}")
+        else:
+            lines.append(f"  {q.symbol or name:<16} {value(name):.6e} {unit_text(q.unit)}")
+    return lines
+
+
 def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
     """A readable summary of a 0-D :class:`~ionbal.IonizationResult`."""
     import ionbal
@@ -97,13 +109,7 @@ def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
         f"  mixture          {mix.name} ({len(mix.elements)} elements)",
         f"  temperature      {f('temperature'):.6g} K",
         f"  given            {r.state_variable.replace('_', ' ')}",
-        f"  n_e              {f('electron_density'):.6e} cm^-3",
-        f"  P_e              {f('electron_pressure'):.6e} dyn cm^-2",
-        f"  P_gas            {f('gas_pressure'):.6e} dyn cm^-2",
-        f"  rho              {f('mass_density'):.6e} g cm^-3",
-        f"  n_H (all H)      {f('hydrogen_density'):.6e} cm^-3",
-        f"  n_nuclei         {f('nuclei_density'):.6e} cm^-3",
-        f"  mu               {f('mean_molecular_weight'):.6f}",
+        *_quantity_lines(f),
         f"  status           {str(np.asarray(r.message))} ({int(np.asarray(r.iterations))} iterations)",
         "",
         f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g})",

@@ -9,7 +9,8 @@ Every quantity ionbal takes or gives is declared here once, as a :class:`Quantit
 * its kind: ``"state"`` (temperature, which every state has), ``"point"`` (one value per point),
   ``"species"`` (one value per species and point), ``"axis"`` or ``"label"`` (file coordinates),
 * whether it can be the second state input (``state_input``: its rank of preference, with its CLI flag), and
-* for outputs, how it is computed from a solved state (``compute``, see :class:`SolvedState`).
+* for outputs, how it is computed from a solved state (``compute``, see :class:`SolvedState`) and
+  the short symbol ``ionbal state`` prints it under.
 
 :func:`ionbal.solve`, :class:`ionbal.result.IonizationResult`, the grid writer and reader, the
 model-column files and the CLI all read this table: a new state input or output quantity is one
@@ -76,6 +77,7 @@ class Quantity:
     short_flag: str | None = None
     compute: Callable[[SolvedState], np.ndarray] | None = None
     dtype: str = "float64"
+    symbol: str | None = None
 
     def __post_init__(self) -> None:
         if self.kind not in KINDS:
@@ -97,25 +99,26 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
     # --- per-point outputs, in file order; state_input=k makes one a possible second state input
     #     (k = order of preference when a model has several such columns)
     _q("electron_density", "cm-3", "free-electron number density", "free-electron number density",
-       compute=lambda s: s.ne),
+       compute=lambda s: s.ne, symbol="n_e"),
     _q("electron_pressure", "dyn cm-2", "electron pressure", "electron pressure",
        state_input=4, flag="--electron-pressure", short_flag="-e",
-       compute=lambda s: s.ne * s.kT),
+       compute=lambda s: s.ne * s.kT, symbol="P_e"),
     _q("gas_pressure", "dyn cm-2", "gas pressure", "gas pressure (ideal gas: nuclei and free electrons)",
        state_input=1, flag="--gas-pressure", short_flag="-P",
-       compute=lambda s: (s.nn + s.ne) * s.kT),
+       compute=lambda s: (s.nn + s.ne) * s.kT, symbol="P_gas"),
     _q("mass_density", "g cm-3", "mass density", "mass density",
        state_input=2, flag="--mass-density", short_flag="-r",
-       compute=lambda s: s.nn * s.packed.mean_mass),
+       compute=lambda s: s.nn * s.packed.mean_mass, symbol="rho"),
     _q("hydrogen_density", "cm-3", "number density of hydrogen nuclei",
        "number density of hydrogen nuclei (H-, H I, H II)",
        state_input=3, flag="--hydrogen-density", short_flag="-n",
-       compute=lambda s: s.nn * s.packed.hydrogen_weight),
+       compute=lambda s: s.nn * s.packed.hydrogen_weight, symbol="n_H (all H)"),
     _q("nuclei_density", "cm-3", "number density of all nuclei",
-       "number density of all nuclei (every element and stage)", compute=lambda s: s.nn),
+       "number density of all nuclei (every element and stage)", compute=lambda s: s.nn,
+       symbol="n_nuclei"),
     _q("mean_molecular_weight", "1", "mean molecular weight",
        "mean molecular weight per free particle, rho / ((n_nuclei + n_e) m_u)",
-       compute=lambda s: s.packed.mean_mass / ((1.0 + s.ne / s.nn) * AMU)),
+       compute=lambda s: s.packed.mean_mass / ((1.0 + s.ne / s.nn) * AMU), symbol="mu"),
     # --- per-species outputs (cubes)
     _q("ion_fraction", "1", "ion fraction", "fraction of the element's nuclei in this ionization stage",
        kind="species"),
