@@ -249,10 +249,13 @@ def _elements(elements) -> list[str]:
         elements = [e for e in elements.replace(",", " ").split() if e]
     out = []
     for e in elements:
-        sp = parse_species(str(e).strip() + " I") if str(e).strip().isalpha() else None
-        if sp is None:
-            raise ValueError(f"{e!r} is not an element symbol (give elements such as Fe, Ca, H)")
-        el = str(sp).split()[0]
+        text = str(e).strip()
+        try:
+            if not text.isalpha():
+                raise ValueError(text)
+            el = str(parse_species(text + " I")).split()[0]
+        except ValueError:
+            raise ValueError(f"{e!r} is not an element symbol (give elements such as Fe, Ca, H)") from None
         if el not in out:
             out.append(el)
     if not out:
@@ -443,8 +446,8 @@ def _column_label(table, col: str) -> str:
     c = _canon(col)
     unit = table[col].unit
     unit_text = None if unit is None else unit.to_string(format="latex_inline")
-    if c in _QUANTITY_LABELS:
-        return _axis_label(c, unit_text if unit_text else None)
+    if c in _QUANTITY_LABELS:  # known columns are in cgs (read_model converts them; ionbal writes cgs)
+        return _axis_label(c)
     names = {"column_mass": r"Column mass $m$", "mass_column": r"Column mass $m$",
              "log_column_mass": r"$\log_{10}$ column mass", "log_tau": r"$\log_{10}\,\tau$",
              "log_tau_ross": r"$\log_{10}\,\tau_\mathrm{Ross}$", "log_tau5000": r"$\log_{10}\,\tau_{5000}$",
@@ -543,7 +546,8 @@ def plot_column_comparison(result, *, quantity: str | None = None, x: str = "aut
             top.legend(loc="best")
             dev = np.asarray(c.percent if unit == "percent" else c.dex, dtype=np.float64)
             bottom.axhline(0.0, color="0.6", linewidth=0.8, zorder=1)
-            bottom.plot(xv, dev, color=OKABE_ITO["vermillion"], marker="o", markersize=2.5, zorder=2)
+            bottom.plot(xv, dev, color=OKABE_ITO["vermillion"], marker="o", markersize=2.5, zorder=2,
+                        label="deviation")
             wp, ip = c.worst_percent
             wd, _ = c.worst_dex
             if ip >= 0:
@@ -684,8 +688,7 @@ def plot_grid_map(grid, quantities=("electron_density", "mean_molecular_weight")
         fig = _new_figure(4.6 * ncol + 0.6, 4.4)
         axes = fig.subplots(1, ncol, squeeze=False, sharey=True)[0]
         for j, (ax, (values, label, logscale)) in enumerate(zip(axes, fields)):
-            cmap = mpl.colormaps[_CMAPS.get(quantities[j], "viridis")].copy()
-            cmap.set_bad("0.75")
+            cmap = mpl.colormaps[_CMAPS.get(quantities[j], "viridis")].with_extremes(bad="0.75")
             v = np.where(unsolved | ~np.isfinite(values), np.nan, values)
             if logscale:
                 pos = v[np.isfinite(v) & (v > 0)]

@@ -47,8 +47,8 @@ LAYERS = {
     "core": 1,
     "data": 2,
     "api": 3, "validity": 3, "_problems": 3, "_version": 3, "__init__": 3,
-    "grid": 4, "io": 4, "column": 4,
-    "cli": 5,
+    "grid": 4, "io": 4, "column": 4, "plot": 4,
+    "cli": 5, "plot_cli": 5,
 }
 
 
