@@ -579,7 +579,7 @@ def plot_column_comparison(result, *, quantity: str | None = None, x: str = "aut
 # ---------------------------------------------------------------------------------------------------
 
 #: hatch pattern of each validity flag on maps
-_HATCHES = {"degenerate": "////", "coupled": "\\\\\\\\", "debye_lowering": "....", "pressure_ionization": "||||"}
+_HATCHES = {"degenerate": "///", "coupled": "\\\\\\", "debye_lowering": "...", "pressure_ionization": "|||"}
 _FLAG_TEXT = {"degenerate": "electron degeneracy", "coupled": "strong Coulomb coupling",
               "debye_lowering": "Debye lowering > 0.1 kT", "pressure_ionization": "pressure ionization"}
 
@@ -705,7 +705,7 @@ def plot_grid_map(grid, quantities=("electron_density", "mean_molecular_weight")
                               rasterized=True)
             cb = fig.colorbar(m, ax=ax, location="top", shrink=0.9, aspect=30, pad=0.02)
             cb.set_label(label)
-            handles = _draw_flags(ax, T, S, flags)
+            handles = _draw_flags(ax, Te, Se, flags)
             if unsolved.any():
                 handles.append(mpl.patches.Patch(facecolor="0.75", edgecolor="none",
                                                  label=f"not solved ({int(unsolved.sum())} points)"))
@@ -741,20 +741,43 @@ def _flags_of(mask) -> dict:
     return out
 
 
-def _draw_flags(ax, T, S, flags) -> list:
-    """Hatch and outline every flagged region; returns legend handles."""
-    import matplotlib as mpl
+def _cell_outline(on: np.ndarray, Te: np.ndarray, Se: np.ndarray) -> list:
+    """Segments of the boundary of the flagged cells (``on[i_T, i_S]``) along the cell edges."""
+    pad = np.pad(on, 1, constant_values=False)
+    segs = []
+    core = pad[1:-1, 1:-1]
+    for di, dj in ((-1, 0), (1, 0), (0, -1), (0, 1)):
+        other = pad[1 + di: pad.shape[0] - 1 + di, 1 + dj: pad.shape[1] - 1 + dj]
+        for i, j in zip(*np.nonzero(core & ~other)):
+            if di:  # a vertical edge at the low (di = -1) or high temperature side of the cell
+                x = Te[i] if di < 0 else Te[i + 1]
+                segs.append([(x, Se[j]), (x, Se[j + 1])])
+            else:
+                y = Se[j] if dj < 0 else Se[j + 1]
+                segs.append([(Te[i], y), (Te[i + 1], y)])
+    return segs
 
+
+def _draw_flags(ax, Te, Se, flags) -> list:
+    """Hatch the flagged cells (one pattern per flag) over a light wash, outline them; legend handles."""
+    import matplotlib as mpl
+    from matplotlib.collections import LineCollection
+
+    if not flags:
+        return []
+    ones = np.ones(next(iter(flags.values())).shape)
+    anyflag = np.logical_or.reduce(list(flags.values()))
+    wash = mpl.colors.ListedColormap([(1.0, 1.0, 1.0, 0.35)])
+    clear = mpl.colors.ListedColormap([(1.0, 1.0, 1.0, 0.0)])
+    ax.pcolor(Te, Se, np.ma.masked_where(~anyflag, ones).T, cmap=wash, linewidth=0.0, zorder=2, rasterized=True)
     handles = []
-    for k, (name, on) in enumerate(flags.items()):
-        z = on.astype(np.float64).T
-        colour = ("white", "black", "white", "black")[k % 4]
-        ax.contourf(T, S, z, levels=[0.5, 1.5], colors="none", hatches=[_HATCHES.get(name, "xx")],
-                    extend="neither")
-        # contourf's hatches take the edge colour from rcParams; draw the outline explicitly
-        ax.contour(T, S, z, levels=[0.5], colors=[colour], linewidths=1.0)
-        handles.append(mpl.patches.Patch(facecolor="0.85", edgecolor="black", hatch=_HATCHES.get(name, "xx"),
+    for name, on in flags.items():
+        hatch = _HATCHES.get(name, "xx")
+        ax.pcolor(Te, Se, np.ma.masked_where(~on, ones).T, cmap=clear, edgecolor="black", linewidth=0.0,
+                  hatch=hatch, zorder=3)
+        handles.append(mpl.patches.Patch(facecolor="0.9", edgecolor="black", hatch=hatch,
                                          label=f"{_FLAG_TEXT.get(name, name)} ({int(on.sum())})"))
+    ax.add_collection(LineCollection(_cell_outline(anyflag, Te, Se), colors="black", linewidths=1.0, zorder=4))
     return handles
 
 
