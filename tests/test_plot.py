@@ -105,6 +105,16 @@ def test_fractions_log_axis_and_other_state(tmp_path):
     assert "[M/H]=-1.00" in fig.get_suptitle() and "P_e" in fig.get_suptitle()
 
 
+def test_fractions_quantity_and_returned_figure(tmp_path):
+    import astropy.units as u
+
+    fig = plot.plot_fractions("Ca", (4000.0, 8000.0), n_points=20, gas_pressure=1e4 * u.Pa)  # = 1e5 dyn cm^-2
+    assert "10^{5}" in fig.get_suptitle()
+    out = tmp_path / "mine.png"
+    fig.savefig(out)  # the figure carries its own (Agg) canvas: no pyplot needed
+    assert_png(out)
+
+
 @pytest.mark.parametrize("ext, head", [(".pdf", b"%PDF-"), (".svg", b"<?xml")])
 def test_other_formats(tmp_path, ext, head):
     out = tmp_path / f"fe{ext}"
