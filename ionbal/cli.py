@@ -19,6 +19,7 @@ from typing import Sequence
 
 import numpy as np
 
+from .plot_cli import add_plot_command
 from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, unit_text
 
 __all__ = ["main", "build_parser", "CLIError"]
@@ -430,7 +431,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 #: functions ``f(subparsers)`` that add further commands
-_EXTENSIONS: list = [_add_grid_command, _add_info_command, _add_column_command]
+_EXTENSIONS: list = [_add_grid_command, _add_info_command, _add_column_command, add_plot_command]
 #: the arguments of the running command (recorded in the files it writes)
 _CURRENT_ARGV: list = []
 
@@ -472,7 +473,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("ionbal: interrupted", file=sys.stderr)
         return 130
-    except (CLIError, ValueError, TypeError, OSError, KeyError) as exc:
+    except (CLIError, ValueError, TypeError, OSError, KeyError, ImportError) as exc:
         if debug:
             raise
         msg = str(exc) or exc.__class__.__name__

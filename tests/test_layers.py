@@ -52,8 +52,8 @@ LAYERS = {
     "api": 3, "validity": 3, "_problems": 3, "_version": 3, "__init__": 3,
     "quantities": 3, "result": 3, "validate": 3, "selection": 3,
     "io": 4,
-    "grid": 4.5, "column": 4.5,
-    "cli": 5,
+    "grid": 4.5, "column": 4.5, "plot": 4.5,
+    "cli": 5, "plot_cli": 5,
 }
 #: no module of the package may be longer than this (lines)
 MAX_MODULE_LINES = 600
