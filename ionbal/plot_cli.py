@@ -175,6 +175,7 @@ def _temperatures(values):
 def run_plot(args: argparse.Namespace) -> int:
     """Run ``ionbal plot KIND``; returns the exit status (errors raise ValueError / OSError)."""
     from . import plot
+    from .plot._base import _state_text
 
     kind = getattr(args, "plot_kind", None)
     if not kind:
@@ -211,7 +212,7 @@ def run_plot(args: argparse.Namespace) -> int:
         state = _state(args)
         r = solve(T, mixture=_mixture(args), **state)
         (name, value), = state.items()
-        title = f"Electron donors: {r.mixture.name}, {plot._state_text(name, value)}"
+        title = f"Electron donors: {r.mixture.name}, {_state_text(name, value)}"
         fig = plot.plot_electron_budget(plot.electron_shares(r), T, max_elements=args.max_elements, title=title,
                                         path=out, overwrite=args.overwrite)
     else:  # pragma: no cover - argparse refuses unknown kinds
