@@ -40,7 +40,7 @@ from .io.models import MODEL_UNITS, read_model
 from .io.models import canonical_column_name as _canon
 from .io.provenance import data_sources
 from .io.tablefile import write_table_file
-from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit
+from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit, species_column_name
 from .selection import resolve_species
 from .validate import check_output_path, outside_temperature_range, table_temperature_range
 
@@ -58,9 +58,6 @@ __all__ = [
 _COMPARED = ("electron_density", "electron_pressure")
 
 
-def species_column_name(prefix: str, species: str) -> str:
-    """Column name of a species quantity: ``fraction_Fe_II``, ``number_density_H_minus``."""
-    return f"{prefix}_{species.replace('-', '_minus').replace(' ', '_')}"
 
 
 # ---------------------------------------------------------------------------------------------------
