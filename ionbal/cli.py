@@ -280,12 +280,14 @@ def _cmd_column(args: argparse.Namespace) -> int:
         if Path(args.model).exists() and out.exists() and out.resolve() == Path(args.model).resolve():
             raise CLIError(f"output {out} is the model file itself; choose another name")
     mixture = mixture_from_args(args)
-    table = read_model(args.model)
-    result = solve_column(table, mixture=mixture, species=_species_arg(args), state=args.state)
+    table = read_model(args.model, columns=args.columns)
+    result = solve_column(table, mixture=mixture, species=_species_arg(args), state=args.state,
+                          partial_pressures=args.partial_pressures)
     written = [write_column(result, out, overwrite=args.overwrite, command=_command_line()) for out in outputs]
     n = len(result.table)
     print(f"ionbal column: {args.model}: {n} depth points, state input {result.state_variable}, mixture "
           f"{result.mixture_name}, {len(result.species)} species")
+    print("\n".join(result.input_lines()))
     for path in written:
         print(f"  wrote {path}")
     if result.comparisons:
@@ -385,8 +387,15 @@ def _add_column_command(sub) -> None:
     p.add_argument("--state", choices=tuple(n for n, *_ in STATE_OPTIONS), default=None,
                    help="which state column to use (default: the first present of gas_pressure, mass_density, "
                         "hydrogen_density, electron_pressure)")
+    p.add_argument("--columns", default=None, metavar="COL=NAME,...",
+                   help="which column of the file is which quantity, e.g. T=temperature,Pg=gas_pressure "
+                        "(names: temperature, gas_pressure, mass_density, hydrogen_density, electron_pressure, "
+                        "electron_density); common spellings such as T, Pgas, rho, Pe, ne are recognised "
+                        "without it")
     p.add_argument("--species", default=None, metavar="LIST",
                    help="'default' (stages I-III of every element, and H-), 'all', or a list such as 'Fe I,Fe II'")
+    p.add_argument("--partial-pressures", action="store_true",
+                   help="also write the partial pressure n k T of every species (partial_pressure_Fe_II, ...)")
     add_mixture_options(p)
     p.add_argument("--overwrite", action="store_true", help="replace existing output files")
     p.add_argument("-q", "--quiet", action="store_true", help="print only the summary, not every depth point")

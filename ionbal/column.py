@@ -34,9 +34,10 @@ from pathlib import Path
 import numpy as np
 
 from ._version import __version__
+from .core.constants import K_B
 from .io.atomic import atomic_output
 from .io.formats import format_of
-from .io.models import MODEL_UNITS, read_model
+from .io.models import MODEL_UNITS, read_model, resolve_columns
 from .io.models import canonical_column_name as _canon
 from .io.provenance import data_sources
 from .io.tablefile import write_table_file
@@ -133,6 +134,29 @@ class ColumnResult:
     number_densities: np.ndarray
     comparisons: list = field(default_factory=list)
     mixture_name: str = ""
+    #: which column of the input became which quantity: registry name -> column name in the model file
+    columns: dict = field(default_factory=dict)
+    #: input columns passed through unchanged (not read by ionbal)
+    passed_through: tuple = ()
+    #: notes on the choice of columns (e.g. a comparison column used as the state input)
+    notes: tuple = ()
+    #: name of the temperature column in :attr:`table`
+    temperature_column: str = "temperature"
+
+    def input_lines(self) -> list[str]:
+        """Which columns were read as what: the state input, the compared columns, the rest."""
+        def src(q):
+            name = self.columns.get(q, q)
+            return q if name == q else f"{q} <- {name!r}"
+        compared = [c.quantity for c in self.comparisons]
+        lines = [f"  temperature      {src('temperature')}",
+                 f"  state input      {src(self.state_variable)}"]
+        if compared:
+            lines.append(f"  compared with    {', '.join(src(q) for q in compared)}")
+        if self.passed_through:
+            lines.append(f"  passed through   {', '.join(self.passed_through)}")
+        lines += [f"  note: {n}" for n in self.notes]
+        return lines
 
     def deviation_lines(self) -> list[str]:
         """Per-depth-point comparison lines (empty without comparisons)."""
@@ -153,14 +177,9 @@ class ColumnResult:
         return lines
 
     def _tname(self) -> str:
+        if self.temperature_column in self.table.colnames:
+            return self.temperature_column
         return next(n for n in self.table.colnames if _canon(n) == "temperature")
-
-
-def _find(table, canon: str) -> str | None:
-    for n in table.colnames:
-        if _canon(n) == canon:
-            return n
-    return None
 
 
 def _where(table, i: int) -> str:
@@ -170,7 +189,8 @@ def _where(table, i: int) -> str:
     return f"depth point {i} (data row {i + 1})"
 
 
-def solve_column(table, *, mixture=None, species="default", state: str | None = None) -> ColumnResult:
+def solve_column(table, *, mixture=None, species="default", state: str | None = None, columns=None,
+                 partial_pressures: bool = False) -> ColumnResult:
     """Solve the ionization balance at every depth point of a model table.
 
     Parameters
@@ -184,17 +204,29 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     state : str, optional
         Which state column to use; default the first present of
         gas_pressure, mass_density, hydrogen_density, electron_pressure.
+    columns : mapping or str, optional
+        Which column is which quantity, e.g. ``{"Tgas": "temperature"}`` or
+        ``"Tgas=temperature,Pg=gas_pressure"``, for names that are neither the
+        registry names nor their aliases (:data:`ionbal.io.models.ALIASES`).
+    partial_pressures : bool
+        Also write the partial pressure of every species (``partial_pressure_Fe_II``).
+
+    The columns used, those passed through and notes on the choice are in the
+    result (:meth:`ColumnResult.input_lines`); nothing is chosen silently.
     """
     from astropy.table import Table
 
     from .api import default_mixture, solve
 
     mix = default_mixture() if mixture is None else mixture
-    tname = _find(table, "temperature")
+    used = resolve_columns(table.colnames, columns)
+    origin = dict(table.meta.get("ionbal_columns") or {})
+    tname = used.get("temperature")
     if tname is None:
         raise ValueError(f"the model has no temperature column; it has {', '.join(table.colnames)}; "
-                         f"name the columns temperature and one of {', '.join(STATE_INPUTS)}")
-    present = [s for s in STATE_INPUTS if _find(table, s) is not None]
+                         f"name the columns temperature and one of {', '.join(STATE_INPUTS)} (or map them: "
+                         "columns={'Tgas': 'temperature'})")
+    present = [s for s in STATE_INPUTS if s in used]
     if state is not None:
         if state not in STATE_INPUTS:
             raise ValueError(f"state column must be one of {', '.join(STATE_INPUTS)}, got {state!r}")
@@ -205,8 +237,15 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         sv = present[0]
     else:
         raise ValueError(f"the model needs one of the columns {', '.join(STATE_INPUTS)} besides temperature; "
-                         f"it has {', '.join(table.colnames)}")
-    sname = _find(table, sv)
+                         f"it has {', '.join(table.colnames)} (map one: columns={{'Pg': 'gas_pressure'}})")
+    sname = used[sv]
+    notes = []
+    others = [s for s in present if s != sv and s not in _COMPARED]
+    if others:
+        notes.append(f"{', '.join(others)} also present; {sv} is the state input"
+                     + ("" if state else " (the first of " + ", ".join(STATE_INPUTS) + "; choose with state=)"))
+    if sv in _COMPARED:
+        notes.append(f"{sv} is the state input, so it is not compared with ionbal's")
     T = np.asarray(table[tname], dtype=np.float64)
     X = np.asarray(table[sname], dtype=np.float64)
     for name, arr in ((tname, T), (sname, X)):
@@ -231,6 +270,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
 
     outputs = [name for name in POINT_OUTPUTS if name != sv]
     res = Table(meta={k: v for k, v in table.meta.items() if k != "line_numbers"})
+    read = set(used.values())
     for name in table.colnames:
         c = _canon(name)
         new = name
@@ -250,7 +290,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
 
     comparisons = []
     for q in _COMPARED:
-        iname = _find(table, q)
+        iname = used.get(q)
         if iname is None or q == sv:
             continue
         ref = np.asarray(table[iname], dtype=np.float64)
@@ -271,11 +311,19 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     for k, name in enumerate(sp_names):
         res[species_column_name("number_density", name)] = dens[k]
         res[species_column_name("number_density", name)].unit = astropy_unit("number_density")
+    if partial_pressures:
+        kT = K_B * T
+        for k, name in enumerate(sp_names):
+            res[species_column_name("partial_pressure", name)] = dens[k] * kT
+            res[species_column_name("partial_pressure", name)].unit = astropy_unit("partial_pressure")
     res.meta["ionbal_state_variable"] = sv
     res.meta["ionbal_mixture"] = mix.name
     res.meta["ionbal_species"] = list(sp_names)
     res.meta["ionbal_abundances"] = {el: float(a) for el, a in zip(mix.elements, mix.log_eps)}
-    return ColumnResult(res, sv, sp_names, frac, dens, comparisons, mix.name)
+    sources = {q: origin.get(q, name) for q, name in used.items()}
+    passed = tuple(n for n in table.colnames if n not in read)
+    return ColumnResult(res, sv, sp_names, frac, dens, comparisons, mix.name, sources, passed, tuple(notes),
+                        tname if tname in res.colnames else f"input_{tname}")
 
 
 # ---------------------------------------------------------------------------------------------------
