@@ -229,6 +229,9 @@ def _species_arg(args: argparse.Namespace):
 def _cmd_grid(args: argparse.Namespace) -> int:
     from .grid import parts_dir_for, run_grid
 
+    from .io.formats import check_grid_output_name
+
+    check_grid_output_name(args.output)
     spec = grid_spec_from_args(args)
     if args.scheduler and args.local_cluster:
         raise CLIError("give either --scheduler ADDRESS or --local-cluster, not both")
@@ -328,7 +331,7 @@ def _add_grid_command(sub) -> None:
                       help="[alpha/M] values, e.g. 0,0.2,0.4")
     out = p.add_argument_group("output")
     out.add_argument("-o", "--output", default=DEFAULT_OUTPUT, metavar="FILE",
-                     help=f"HDF5 file to write (default {DEFAULT_OUTPUT})")
+                     help=f"HDF5 file to write: .h5, .hdf5 or .nc (default {DEFAULT_OUTPUT})")
     out.add_argument("--species", default=None, metavar="LIST",
                      help="species of the ion-fraction cube: 'default' (stages I-III of every element, and H-), "
                           "'all' (every stage), or a list such as 'H-,H I,Fe I,Fe II'")
@@ -383,7 +386,8 @@ def _add_column_command(sub) -> None:
         epilog="Example: ionbal column model.txt -o model.ionbal.ecsv -o model.ionbal.h5")
     p.add_argument("model", metavar="MODEL", help="the depth structure (.ecsv, .csv or whitespace text)")
     p.add_argument("-o", "--output", action="append", default=None, metavar="FILE",
-                   help="output file, .ecsv or .h5 (repeatable; default MODEL-STEM.ionbal.ecsv here)")
+                   help="output file: .ecsv (with units), .csv, .txt (fixed-width text) or .h5 (repeatable; "
+                        "default MODEL-STEM.ionbal.ecsv here)")
     p.add_argument("--state", choices=tuple(n for n, *_ in STATE_OPTIONS), default=None,
                    help="which state column to use (default: the first present of gas_pressure, mass_density, "
                         "hydrogen_density, electron_pressure)")

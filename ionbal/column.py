@@ -332,14 +332,22 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
 
 
 def check_output(path, *, overwrite: bool = False) -> str:
-    """Check that a column result can be written to ``path``; returns its format ("ecsv" or "hdf5")."""
+    """Check that a column result can be written to ``path``; returns its format (see :data:`FORMATS`)."""
     fmt = format_of(path)
     check_output_path(path, overwrite=overwrite)
     return fmt
 
 
 def write_column(result: ColumnResult, path, *, overwrite: bool = False, command: str | None = None) -> Path:
-    """Write a column result as ECSV (``.ecsv``) or HDF5 (``.h5``/``.hdf5``/``.nc``), atomically.
+    """Write a column result, atomically, in the format of its extension:
+
+    * ``.ecsv``: astropy's ECSV, with units and metadata;
+    * ``.csv``: comma-separated values with one header line of column names (values in cgs, the
+      units of the registry; no comment lines, so spreadsheets and ``pandas.read_csv`` read it);
+    * ``.txt`` / ``.dat``: a fixed-width table, columns separated by blanks, preceded by ``#``
+      comment lines with the units of every column and the provenance (``ionbal column`` reads
+      it back; so do ``numpy.loadtxt(..., skiprows=...)``-style readers of other codes);
+    * ``.h5`` / ``.hdf5`` / ``.nc``: netCDF-4 style HDF5.
 
     An existing file is replaced only with ``overwrite`` and only once the new
     one is complete.
@@ -348,6 +356,9 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
     path = Path(path)
     fmt = check_output(path, overwrite=overwrite)
     meta_extra = {"ionbal_version": __version__, "ionbal_command": command or "ionbal.column.write_column"}
+    if fmt in ("csv", "text"):
+        _write_text_table(result, path, fmt, overwrite=overwrite, meta_extra=meta_extra)
+        return path
     if fmt == "ecsv":
         t = result.table.copy(copy_data=False)
         t.meta.update(meta_extra)
@@ -378,6 +389,31 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
                      cubes={"ion_fraction": result.fractions, "number_density": result.number_densities},
                      attrs=attrs, overwrite=overwrite)
     return path
+
+
+def _write_text_table(result: ColumnResult, path: Path, fmt: str, *, overwrite: bool, meta_extra: dict) -> None:
+    from astropy.table import Table
+
+    t = Table(result.table, copy=False)
+    t.meta.clear()
+    if fmt == "csv":
+        with atomic_output(path, overwrite=overwrite) as tmp:
+            t.write(tmp, format="ascii.csv", overwrite=True)
+        return
+    comments = [f"ionbal {meta_extra['ionbal_version']}: LTE ionization balance of a model-atmosphere column",
+                f"command: {meta_extra['ionbal_command']}",
+                f"mixture: {result.mixture_name}; state input: {result.state_variable}",
+                *[c.summary() for c in result.comparisons],
+                "units (cgs): " + ", ".join(f"{n} [{_unit_string(t[n].unit)}]" for n in t.colnames
+                                             if t[n].unit is not None and str(t[n].unit) != "")]
+    t.meta["comments"] = comments
+    formats = {n: "%.15e" for n in t.colnames if t[n].dtype.kind == "f"}
+    for n in t.colnames:
+        if t[n].dtype.kind in "US" and any(" " in str(v) or not str(v) for v in t[n]):
+            raise ValueError(f"column {n} has values with blanks or empty values; a fixed-width text table "
+                             "cannot hold them, write .csv or .ecsv")
+    with atomic_output(path, overwrite=overwrite) as tmp:
+        t.write(tmp, format="ascii.fixed_width", delimiter=" ", bookend=False, formats=formats, overwrite=True)
 
 
 def _unit_string(unit) -> str:

@@ -332,7 +332,7 @@ def test_fuzz_argument_lists(in_tmp, capsys, no_computing):
     for _ in range(40):
         cases.append(rng.choice([["info", "junk.h5"], ["info", "nothing.h5"], ["info", "model.txt"],
                                  ["column", "model.txt", "--state", "mass_density"],
-                                 ["column", "model.txt", "-o", "x.txt"], ["column", "junk.h5"],
+                                 ["column", "model.txt", "-o", "x.fits"], ["column", "junk.h5"],
                                  ["state", "-T", "abc"], ["grid", "--tile-size"], ["column", "model.txt",
                                                                                    "--species", "Fe 9"]]))
     for args in cases:

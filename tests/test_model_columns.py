@@ -76,3 +76,34 @@ def test_partial_pressures_column(tmp_path):
     from ionbal.core.constants import K_B
     np.testing.assert_allclose(res.table["partial_pressure_H_I"], res.table["number_density_H_I"] * K_B * T,
                                rtol=1e-14)
+
+
+def test_csv_and_text_outputs_read_back(tmp_path):
+    from astropy.table import Table
+
+    from ionbal.column import write_column
+
+    res = solve_column(read_model(_model(tmp_path, ("depth", "T", "Pgas", "Pe"))), species="H I,Fe II")
+    csv, txt = tmp_path / "o.csv", tmp_path / "o.txt"
+    write_column(res, csv)
+    write_column(res, txt, command="test")
+    c = Table.read(csv, format="ascii.csv")
+    assert c.colnames == res.table.colnames
+    np.testing.assert_array_equal(c["electron_density"], res.table["electron_density"])  # repr: lossless
+    text = txt.read_text()
+    assert text.startswith("# ionbal") and "electron_density [cm-3]" in text and "# command: test" in text
+    back = read_model(txt)  # the text table is a model file again
+    np.testing.assert_allclose(back["electron_density"], res.table["electron_density"], rtol=1e-15)
+    np.testing.assert_allclose(back["fraction_Fe_II"], res.table["fraction_Fe_II"], rtol=1e-15)
+    with pytest.raises(ValueError, match="unknown extension .fits"):
+        write_column(res, tmp_path / "o.fits")
+
+
+@pytest.mark.parametrize("name", ["out.txt", "out.csv", "out", "out.ecsv"])
+def test_grid_refuses_non_hdf5_names(tmp_path, monkeypatch, capsys, name):
+    from ionbal.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    assert main(["grid", "-T", "4000,5000", "-P", "1e3,1e4", "-o", name]) == 2
+    assert "a grid file is HDF5" in capsys.readouterr().err
+    assert list(tmp_path.iterdir()) == []
