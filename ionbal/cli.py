@@ -14,6 +14,7 @@ a non-zero exit status; ``--debug`` shows the traceback instead.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import sys
 from typing import Sequence
 
@@ -98,6 +99,60 @@ def _quantity_lines(value) -> list[str]:
     return lines
 
 
+def _validity_lines(result) -> list[str]:
+    """The validity flags of a 0-D result: 'none raised', or a caution line per raised flag."""
+    from .validity import PHYSICS_FLAGS, VALIDITY_FLAGS
+
+    v = result.validity
+    if bool(np.asarray(v.unsolved)):
+        return ["  validity         not assessed: the state was not solved"]
+    raised = [name for name in PHYSICS_FLAGS if bool(np.asarray(getattr(v, name)))]
+    if not raised:
+        return ["  validity         no flag raised (degeneracy, coupling, Debye lowering and pressure ionization "
+                "small; non-LTE is not assessed)"]
+    lines = [f"  validity         CAUTION: {len(raised)} flag(s) raised; the ideal-gas Saha balance is "
+             "off by roughly ten per cent or more here"]
+    for name in raised:
+        param, limit, text = VALIDITY_FLAGS[name]
+        value = float(np.asarray(getattr(v, param)))
+        lines.append(f"    {name:<20} {param} = {value:.3g} > {limit:g}: {text.split(':')[0]}")
+    return lines
+
+
+def state_record(result, *, elements=None) -> dict:
+    """Everything ``ionbal state`` shows, as a JSON-ready dict (values in cgs, units named)."""
+    import ionbal
+    from .validity import FLAG_NAMES, PHYSICS_FLAGS, VALIDITY_FLAGS
+
+    r = result
+    v = r.validity
+    val = lambda name: float(np.asarray(r.quantity(name).value))  # noqa: E731
+    rec = {
+        "ionbal_version": ionbal.__version__,
+        "mixture": r.mixture.name,
+        "state_input": r.state_variable,
+        "temperature": val("temperature"),
+        **{name: val(name) for name in POINT_OUTPUTS},
+        "units": {name: QUANTITIES[name].unit for name in ("temperature",) + POINT_OUTPUTS},
+        "status": int(np.asarray(r.status)),
+        "message": str(np.asarray(r.message)),
+        "iterations": int(np.asarray(r.iterations)),
+        "validity": {
+            "trustworthy": bool(np.asarray(v.trustworthy)),
+            "flags": {name: bool(np.asarray(getattr(v, name))) for name in FLAG_NAMES},
+            "parameters": {VALIDITY_FLAGS[n][0]: float(np.asarray(getattr(v, VALIDITY_FLAGS[n][0])))
+                           for n in PHYSICS_FLAGS},
+            "limits": {VALIDITY_FLAGS[n][0]: VALIDITY_FLAGS[n][1] for n in PHYSICS_FLAGS},
+        },
+        "fractions": {},
+    }
+    for el in (elements or r.mixture.elements):
+        names = r.stages(el)
+        fr = np.asarray(r.fractions(el)).reshape(len(names))
+        rec["fractions"].update({n: float(x) for n, x in zip(names, fr)})
+    return rec
+
+
 def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
     """A readable summary of a 0-D :class:`~ionbal.IonizationResult`."""
     import ionbal
@@ -112,6 +167,7 @@ def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
         f"  given            {r.state_variable.replace('_', ' ')}",
         *_quantity_lines(f),
         f"  status           {str(np.asarray(r.message))} ({int(np.asarray(r.iterations))} iterations)",
+        *_validity_lines(r),
         "",
         f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g})",
     ]
@@ -140,8 +196,34 @@ def _cmd_state(args: argparse.Namespace) -> int:
         for el in elements:
             if el not in mix.elements:
                 raise CLIError(f"element {el} is not in the mixture")
+    if args.output:
+        from .io.formats import format_of
+        from .validate import check_output_path
+
+        fmt = format_of(args.output)
+        if fmt == "hdf5":
+            raise CLIError(f"output {args.output}: ionbal state writes .ecsv, .csv or .txt tables; "
+                           "for HDF5 use ionbal grid")
+        check_output_path(args.output, overwrite=args.overwrite)
     result = solve(args.temperature, mixture=mix, **given)
-    print(format_state(result, min_fraction=args.min_fraction, elements=elements))
+    if args.json:
+        import json
+
+        print(json.dumps(state_record(result, elements=elements), indent=2))
+    else:
+        print(format_state(result, min_fraction=args.min_fraction, elements=elements))
+    if args.output:
+        from .io.tablefile import write_text_table
+        from .validity import bitmask
+
+        species = [s for el in (elements or mix.elements) for s in result.stages(el)]
+        table = result.to_table(species=species)
+        table["validity"] = np.atleast_1d(bitmask(result.validity)).astype(np.uint8)
+        table.meta["ionbal_command"] = _command_line()
+        write_text_table(table, args.output, fmt, overwrite=args.overwrite,
+                         comments=[f"ionbal state: command {_command_line()}", f"mixture: {mix.name}"])
+        if not args.json:
+            print(f"  wrote {args.output}")
     return 0
 
 
@@ -290,7 +372,7 @@ def _cmd_column(args: argparse.Namespace) -> int:
     n = len(result.table)
     print(f"ionbal column: {args.model}: {n} depth points, state input {result.state_variable}, mixture "
           f"{result.mixture_name}, {len(result.species)} species")
-    print("\n".join(result.input_lines()))
+    print(cli_wording("\n".join(result.input_lines())))
     for path in written:
         print(f"  wrote {path}")
     if result.comparisons:
@@ -426,8 +508,10 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("state", help="ionization balance of one state, printed as a summary",
                        description="Solve one state (temperature plus one more state variable) and print "
-                                   "n_e, P_e, rho, mu and, per element, the dominant stage and the stage "
-                                   "fractions.")
+                                   "n_e, P_e, rho, mu, the validity flags of ideal-gas LTE Saha and, per "
+                                   "element, the dominant stage and the stage fractions.",
+                       epilog="Examples: ionbal state -T 5800 -P 1e5; ionbal state -T 20000 -P 1e12 --json; "
+                              "ionbal state -T 5800 -P 1e5 -o state.ecsv")
     p.add_argument("-T", "--temperature", type=float, required=True, help="temperature [K]")
     for name, flag, short, helptext in STATE_OPTIONS:
         p.add_argument(short, flag, dest=name, type=float, default=None, help=helptext)
@@ -436,6 +520,13 @@ def build_parser() -> argparse.ArgumentParser:
     out.add_argument("--elements", default=None, metavar="EL,EL,...", help="show only these elements")
     out.add_argument("--min-fraction", type=float, default=1e-4,
                      help="list the stages whose fraction exceeds this (default 1e-4)")
+    out.add_argument("--json", action="store_true",
+                     help="print everything as JSON (cgs values, units, validity flags, every stage fraction) "
+                          "for scripts")
+    out.add_argument("-o", "--output", default=None, metavar="FILE",
+                     help="also write the state as a one-row table: .ecsv (with units), .csv or .txt; columns "
+                          "named as in ionbal column files (fraction_Fe_II, number_density_Fe_II, ...)")
+    out.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     p.set_defaults(func=_cmd_state)
 
     for extend in _EXTENSIONS:
@@ -470,6 +561,27 @@ def _join_negative_lists(argv: list) -> list:
     return out
 
 
+#: remedies that the layers below phrase for Python callers, and how a CLI user applies them
+_CLI_REMEDIES: tuple[tuple[str, str], ...] = (
+    (r"pass --overwrite \(overwrite=True\)", "pass --overwrite"),
+    (r"pass overwrite=True", "pass --overwrite"),
+    (r"; pass errors='mask' to get a status code instead", "; check the temperature and the state value"),
+    (r" \(or pass NaN with errors='mask'\)", ""),
+    (r"choose with state=\)", "choose with --state)"),
+    (r"columns=\{'([^']*)': '([^']*)'\}", r"--columns \1=\2"),
+    (r"\(use method='linear'\)", "(use linear interpolation)"),
+)
+
+
+def cli_wording(message: str) -> str:
+    """A message of the layers below, with Python-only remedies put as the CLI's options."""
+    import re
+
+    for pattern, repl in _CLI_REMEDIES:
+        message = re.sub(pattern, repl, message)
+    return message
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
     argv = list(sys.argv[1:] if argv is None else argv)
@@ -486,10 +598,16 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("ionbal: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # e.g. `ionbal column ... | head`: the reader left; not an error of ours
+        import os
+
+        with contextlib.suppress(OSError):
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except (CLIError, ValueError, TypeError, OSError, KeyError, ImportError) as exc:
         if debug:
             raise
-        msg = str(exc) or exc.__class__.__name__
+        msg = cli_wording(str(exc) or exc.__class__.__name__)
         if not msg.startswith("ionbal"):
             msg = f"ionbal: error: {msg}"
         print(msg.splitlines()[0] if msg else msg, file=sys.stderr)

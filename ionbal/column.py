@@ -40,8 +40,8 @@ from .io.formats import format_of
 from .io.models import MODEL_UNITS, read_model, resolve_columns
 from .io.models import canonical_column_name as _canon
 from .io.provenance import data_sources
-from .io.tablefile import write_table_file
-from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit, species_column_name
+from .io.tablefile import write_table_file, write_text_table
+from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit, species_column_name, unit_of_astropy
 from .selection import resolve_species
 from .validate import check_output_path, outside_temperature_range, table_temperature_range
 
@@ -392,36 +392,16 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
 
 
 def _write_text_table(result: ColumnResult, path: Path, fmt: str, *, overwrite: bool, meta_extra: dict) -> None:
-    from astropy.table import Table
-
-    t = Table(result.table, copy=False)
-    t.meta.clear()
-    if fmt == "csv":
-        with atomic_output(path, overwrite=overwrite) as tmp:
-            t.write(tmp, format="ascii.csv", overwrite=True)
-        return
     comments = [f"ionbal {meta_extra['ionbal_version']}: LTE ionization balance of a model-atmosphere column",
                 f"command: {meta_extra['ionbal_command']}",
                 f"mixture: {result.mixture_name}; state input: {result.state_variable}",
-                *[c.summary() for c in result.comparisons],
-                "units (cgs): " + ", ".join(f"{n} [{_unit_string(t[n].unit)}]" for n in t.colnames
-                                             if t[n].unit is not None and str(t[n].unit) != "")]
-    t.meta["comments"] = comments
-    formats = {n: "%.15e" for n in t.colnames if t[n].dtype.kind == "f"}
-    for n in t.colnames:
-        if t[n].dtype.kind in "US" and any(" " in str(v) or not str(v) for v in t[n]):
-            raise ValueError(f"column {n} has values with blanks or empty values; a fixed-width text table "
-                             "cannot hold them, write .csv or .ecsv")
-    with atomic_output(path, overwrite=overwrite) as tmp:
-        t.write(tmp, format="ascii.fixed_width", delimiter=" ", bookend=False, formats=formats, overwrite=True)
+                *[c.summary() for c in result.comparisons]]
+    write_text_table(result.table, path, fmt, overwrite=overwrite, comments=comments)
 
 
 def _unit_string(unit) -> str:
     """The ``units`` attribute of a column in an HDF5 file: the registry's spelling (``"dyn cm-2"``)."""
-    for q in QUANTITIES.values():
-        if q.unit not in ("", "1") and astropy_unit(q.unit) == unit:
-            return q.unit
-    return unit.to_string()
+    return unit_of_astropy(unit)
 
 
 def default_output(model_path) -> Path:

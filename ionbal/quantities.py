@@ -41,6 +41,7 @@ __all__ = [
     "long_name",
     "unit_text",
     "species_column_name",
+    "unit_of_astropy",
 ]
 
 KINDS = ("state", "point", "species", "axis", "label", "meta")
@@ -200,3 +201,11 @@ def species_column_name(quantity: str, species) -> str:
     """
     label = str(species)
     return f"{quantity}_{label.replace('-', '_minus').replace(' ', '_')}"
+
+
+def unit_of_astropy(u) -> str:
+    """The registry's spelling of an astropy unit (``"dyn cm-2"``), else astropy's own string."""
+    for q in QUANTITIES.values():
+        if q.unit not in ("", "1") and _astropy_unit(q.unit) == u:
+            return q.unit
+    return u.to_string()
