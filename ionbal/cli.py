@@ -21,9 +21,10 @@ from typing import Sequence
 import numpy as np
 
 from .plot_cli import add_plot_command
-from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, unit_text
+from .quantities import QUANTITIES, STATE_INPUTS
+from .state_report import format_state, state_record
 
-__all__ = ["main", "build_parser", "CLIError"]
+__all__ = ["main", "build_parser", "CLIError", "format_state", "state_record", "cli_wording"]
 
 
 class CLIError(Exception):
@@ -83,103 +84,6 @@ STATE_OPTIONS = tuple((n, QUANTITIES[n].flag, QUANTITIES[n].short_flag, QUANTITI
 # ionbal state
 # ---------------------------------------------------------------------------------------------------
 
-def _fmt_fraction(f: float) -> str:
-    return f"{f:.5f}" if f >= 1e-3 else f"{f:.2e}"
-
-
-def _quantity_lines(value) -> list[str]:
-    """One line per per-point output of the registry: symbol, value, unit."""
-    lines = []
-    for name in POINT_OUTPUTS:
-        q = QUANTITIES[name]
-        if q.unit in ("", "1"):
-            lines.append(f"  {q.symbol or name:<16} {value(name):.6f}")
-        else:
-            lines.append(f"  {q.symbol or name:<16} {value(name):.6e} {unit_text(q.unit)}")
-    return lines
-
-
-def _validity_lines(result) -> list[str]:
-    """The validity flags of a 0-D result: 'none raised', or a caution line per raised flag."""
-    from .validity import PHYSICS_FLAGS, VALIDITY_FLAGS
-
-    v = result.validity
-    if bool(np.asarray(v.unsolved)):
-        return ["  validity         not assessed: the state was not solved"]
-    raised = [name for name in PHYSICS_FLAGS if bool(np.asarray(getattr(v, name)))]
-    if not raised:
-        return ["  validity         no flag raised (degeneracy, coupling, Debye lowering and pressure ionization "
-                "small; non-LTE is not assessed)"]
-    lines = [f"  validity         CAUTION: {len(raised)} flag(s) raised; the ideal-gas Saha balance is "
-             "off by roughly ten per cent or more here"]
-    for name in raised:
-        param, limit, text = VALIDITY_FLAGS[name]
-        value = float(np.asarray(getattr(v, param)))
-        lines.append(f"    {name:<20} {param} = {value:.3g} > {limit:g}: {text.split(':')[0]}")
-    return lines
-
-
-def state_record(result, *, elements=None) -> dict:
-    """Everything ``ionbal state`` shows, as a JSON-ready dict (values in cgs, units named)."""
-    import ionbal
-    from .validity import FLAG_NAMES, PHYSICS_FLAGS, VALIDITY_FLAGS
-
-    r = result
-    v = r.validity
-    val = lambda name: float(np.asarray(r.quantity(name).value))  # noqa: E731
-    rec = {
-        "ionbal_version": ionbal.__version__,
-        "mixture": r.mixture.name,
-        "state_input": r.state_variable,
-        "temperature": val("temperature"),
-        **{name: val(name) for name in POINT_OUTPUTS},
-        "units": {name: QUANTITIES[name].unit for name in ("temperature",) + POINT_OUTPUTS},
-        "status": int(np.asarray(r.status)),
-        "message": str(np.asarray(r.message)),
-        "iterations": int(np.asarray(r.iterations)),
-        "validity": {
-            "trustworthy": bool(np.asarray(v.trustworthy)),
-            "flags": {name: bool(np.asarray(getattr(v, name))) for name in FLAG_NAMES},
-            "parameters": {VALIDITY_FLAGS[n][0]: float(np.asarray(getattr(v, VALIDITY_FLAGS[n][0])))
-                           for n in PHYSICS_FLAGS},
-            "limits": {VALIDITY_FLAGS[n][0]: VALIDITY_FLAGS[n][1] for n in PHYSICS_FLAGS},
-        },
-        "fractions": {},
-    }
-    for el in (elements or r.mixture.elements):
-        names = r.stages(el)
-        fr = np.asarray(r.fractions(el)).reshape(len(names))
-        rec["fractions"].update({n: float(x) for n, x in zip(names, fr)})
-    return rec
-
-
-def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
-    """A readable summary of a 0-D :class:`~ionbal.IonizationResult`."""
-    import ionbal
-
-    r = result
-    f = lambda name: float(np.asarray(getattr(r, name)))  # noqa: E731
-    mix = r.mixture
-    lines = [
-        f"ionbal {ionbal.__version__}: LTE ionization balance (ideal gas, atoms and ions, no molecules)",
-        f"  mixture          {mix.name} ({len(mix.elements)} elements)",
-        f"  temperature      {f('temperature'):.6g} K",
-        f"  given            {r.state_variable.replace('_', ' ')}",
-        *_quantity_lines(f),
-        f"  status           {str(np.asarray(r.message))} ({int(np.asarray(r.iterations))} iterations)",
-        *_validity_lines(r),
-        "",
-        f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g})",
-    ]
-    for el in (elements or mix.elements):
-        names = r.stages(el)
-        fr = np.asarray(r.fractions(el)).reshape(len(names))
-        dom = names[int(np.argmax(fr))]
-        shown = [f"{n} {_fmt_fraction(x)}" for n, x in zip(names, fr) if x >= min_fraction]
-        lines.append(f"  {el:<8} {dom:<10} " + "  ".join(shown))
-    return "\n".join(lines)
-
-
 def _cmd_state(args: argparse.Namespace) -> int:
     from .api import solve
 
@@ -205,6 +109,7 @@ def _cmd_state(args: argparse.Namespace) -> int:
             raise CLIError(f"output {args.output}: ionbal state writes .ecsv, .csv or .txt tables; "
                            "for HDF5 use ionbal grid")
         check_output_path(args.output, overwrite=args.overwrite)
+    _compile_note()
     result = solve(args.temperature, mixture=mix, **given)
     if args.json:
         import json
@@ -237,6 +142,20 @@ def _note(args: argparse.Namespace):
         if not getattr(args, "quiet", False):
             print(f"ionbal: {message}", file=sys.stderr)
     return note
+
+
+def _compile_note(args: argparse.Namespace | None = None, *, points: int = 1) -> None:
+    """Say so before numba compiles the kernels (first run only; otherwise a silent wait of 5-30 s)."""
+    if args is not None and getattr(args, "quiet", False):
+        return
+    from .api import SERIAL_POINTS
+    from .core.config import needs_compiling
+    from .core.solver import ion_moments_many, log_fractions_many, solve_few, solve_many
+
+    driver = solve_few if points <= SERIAL_POINTS else solve_many
+    if needs_compiling(driver, log_fractions_many, ion_moments_many):
+        print("ionbal: compiling kernels (first run only; about half a minute, cached afterwards)",
+              file=sys.stderr, flush=True)
 
 
 def _command_line(argv_name: str = "ionbal") -> str:
@@ -321,6 +240,7 @@ def _cmd_grid(args: argparse.Namespace) -> int:
         raise CLIError("--executor threads runs locally; it cannot be combined with --scheduler/--local-cluster")
     executor = "dask" if (args.scheduler or args.local_cluster) else args.executor
     progress = False if args.quiet else None
+    _compile_note(args, points=spec.n_points)
     try:
         run = run_grid(spec, args.output, overwrite=args.overwrite, discard_parts=args.discard_parts,
                        executor=executor, workers=args.workers, scheduler=args.scheduler,
@@ -366,8 +286,10 @@ def _cmd_column(args: argparse.Namespace) -> int:
             raise CLIError(f"output {out} is the model file itself; choose another name")
     mixture = mixture_from_args(args)
     table = read_model(args.model, columns=args.columns)
+    _compile_note(args, points=len(table))
     result = solve_column(table, mixture=mixture, species=_species_arg(args), state=args.state,
-                          partial_pressures=args.partial_pressures)
+                          partial_pressures=args.partial_pressures,
+                          progress=False if args.quiet else None)
     written = [write_column(result, out, overwrite=args.overwrite, command=_command_line()) for out in outputs]
     n = len(result.table)
     print(f"ionbal column: {args.model}: {n} depth points, state input {result.state_variable}, mixture "

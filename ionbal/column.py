@@ -37,7 +37,7 @@ from ._version import __version__
 from .core.constants import K_B
 from .io.atomic import atomic_output
 from .io.formats import format_of
-from .io.models import MODEL_UNITS, read_model, resolve_columns
+from .io.models import MODEL_UNITS, parse_column_map, read_model, resolve_columns
 from .io.models import canonical_column_name as _canon
 from .io.provenance import data_sources
 from .io.tablefile import write_table_file, write_text_table
@@ -189,8 +189,51 @@ def _where(table, i: int) -> str:
     return f"depth point {i} (data row {i + 1})"
 
 
+#: depth points solved at once (bounded memory; the unit of progress of long models)
+CHUNK_POINTS = 20_000
+
+
+def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress) -> dict:
+    """Solve the depth points in chunks: the per-point outputs, status, iterations, validity bitmask,
+    fractions and number densities of the species, as plain arrays over all points."""
+    from .api import solve
+    from .grid.progress import Progress
+    from .validity import bitmask
+
+    n = len(T)
+    got = {name: np.empty(n) for name in set(outputs) | set(_COMPARED)}
+    got["status"] = np.empty(n, dtype=np.int8)
+    got["iterations"] = np.empty(n, dtype=np.int32)
+    got["validity"] = np.empty(n, dtype=np.uint8)
+    got["fractions"] = np.empty((len(sp_names), n))
+    got["number_densities"] = np.empty((len(sp_names), n))
+    bar = Progress(n, enabled=False if (progress is False or n <= CHUNK_POINTS) else progress,
+                   label="ionbal column")
+    try:
+        for a in range(0, n, CHUNK_POINTS):
+            b = min(n, a + CHUNK_POINTS)
+            r = solve(T[a:b], mixture=mix, errors="mask", units=False, **{sv: X[a:b]})
+            status = np.asarray(r.status)
+            if (status != 0).any():
+                i = int(np.flatnonzero(status != 0)[0])
+                raise ValueError(f"no converged solution at {where(a + i)} (T={T[a + i]:g} K, {sv}="
+                                 f"{X[a + i]:g}): {r.message[i]}")
+            for name in got:
+                if name in QUANTITIES and QUANTITIES[name].compute is not None:
+                    got[name][a:b] = r[name]
+            got["status"][a:b] = status
+            got["iterations"][a:b] = r.iterations
+            got["validity"][a:b] = bitmask(r.validity)
+            got["fractions"][:, a:b] = r.species_fractions(sp_names)
+            got["number_densities"][:, a:b] = r.number_densities(sp_names, fractions=got["fractions"][:, a:b])
+            bar.update(b - a)
+    finally:
+        bar.close()
+    return got
+
+
 def solve_column(table, *, mixture=None, species="default", state: str | None = None, columns=None,
-                 partial_pressures: bool = False) -> ColumnResult:
+                 partial_pressures: bool = False, progress: bool | None = False) -> ColumnResult:
     """Solve the ionization balance at every depth point of a model table.
 
     Parameters
@@ -210,17 +253,22 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         registry names nor their aliases (:data:`ionbal.io.models.ALIASES`).
     partial_pressures : bool
         Also write the partial pressure of every species (``partial_pressure_Fe_II``).
+    progress : bool or None
+        Progress on stderr for models longer than :data:`CHUNK_POINTS` (solved chunk by
+        chunk): ``None`` a bar on a terminal and periodic lines elsewhere, ``False`` (default) none.
 
     The columns used, those passed through and notes on the choice are in the
     result (:meth:`ColumnResult.input_lines`); nothing is chosen silently.
     """
     from astropy.table import Table
 
-    from .api import default_mixture, solve
+    from .api import default_mixture
 
     mix = default_mixture() if mixture is None else mixture
-    used = resolve_columns(table.colnames, columns)
     origin = dict(table.meta.get("ionbal_columns") or {})
+    if columns is not None and origin:  # entries read_model has applied already (renamed) are dropped
+        columns = {k: v for k, v in parse_column_map(columns).items() if origin.get(v) != k}
+    used = resolve_columns(table.colnames, columns)
     tname = used.get("temperature")
     if tname is None:
         raise ValueError(f"the model has no temperature column; it has {', '.join(table.colnames)}; "
@@ -261,31 +309,26 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         raise ValueError(f"temperature {T[i]:g} K at {_where(table, i)} is outside the partition-function "
                          f"tables ({t_lo:.4g}-{t_hi:.4g} K)")
     sp_names = resolve_species(mix, species)
-    r = solve(T, mixture=mix, errors="mask", **{sv: X})
-    status = np.asarray(r.status)
-    if (status != 0).any():
-        i = int(np.flatnonzero(status != 0)[0])
-        raise ValueError(f"no converged solution at {_where(table, i)} (T={T[i]:g} K, {sv}={X[i]:g}): "
-                         f"{r.message[i]}")
-
     outputs = [name for name in POINT_OUTPUTS if name != sv]
+    got = _solve_rows(T, X, sv, mix, sp_names, outputs, lambda i: _where(table, i), progress)
+    status = got["status"]
+
     res = Table(meta={k: v for k, v in table.meta.items() if k != "line_numbers"})
     read = set(used.values())
     for name in table.colnames:
         c = _canon(name)
         new = name
-        if c in outputs or c in ("status", "iterations", "validity") or c.startswith(("fraction_", "number_density_")):
+        if c in outputs or c in ("status", "iterations", "validity") or c.startswith(("fraction_", "number_density_",
+                                                                                        "partial_pressure_")):
             new = f"input_{name}"
         res[new] = table[name]
     for name in outputs:
-        res[name] = np.asarray(r[name], dtype=np.float64)
+        res[name] = got[name]
         if QUANTITIES[name].unit not in ("", "1"):
             res[name].unit = astropy_unit(name)
     res["status"] = status.astype(np.int8)
-    res["iterations"] = np.asarray(r.iterations, dtype=np.int32)
-    from .validity import bitmask
-
-    res["validity"] = np.asarray(bitmask(r.validity), dtype=np.uint8)
+    res["iterations"] = got["iterations"]
+    res["validity"] = got["validity"]
     res["validity"].description = "validity flags of ideal-gas LTE Saha (bitmask, see ionbal.validity)"
 
     comparisons = []
@@ -294,7 +337,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         if iname is None or q == sv:
             continue
         ref = np.asarray(table[iname], dtype=np.float64)
-        ours = np.asarray(getattr(r, q), dtype=np.float64)
+        ours = got[q]
         ok = np.isfinite(ref) & (ref > 0)
         with np.errstate(divide="ignore", invalid="ignore"):
             pct = np.where(ok, 100.0 * (ours / ref - 1.0), np.nan)
@@ -304,8 +347,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         res[f"{q}_deviation_percent"] = pct
         res[f"{q}_deviation_dex"] = dex
 
-    frac = r.species_fractions(sp_names).reshape(len(sp_names), len(T))
-    dens = r.number_densities(sp_names, fractions=frac).reshape(len(sp_names), len(T))
+    frac, dens = got["fractions"], got["number_densities"]
     for k, name in enumerate(sp_names):
         res[species_column_name("fraction", name)] = frac[k]
     for k, name in enumerate(sp_names):

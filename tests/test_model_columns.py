@@ -107,3 +107,32 @@ def test_grid_refuses_non_hdf5_names(tmp_path, monkeypatch, capsys, name):
     assert main(["grid", "-T", "4000,5000", "-P", "1e3,1e4", "-o", name]) == 2
     assert "a grid file is HDF5" in capsys.readouterr().err
     assert list(tmp_path.iterdir()) == []
+
+
+def test_mapping_given_to_both_reader_and_solver(tmp_path):
+    p = _model(tmp_path, ("depth", "Tgas_K", "Pgas", "Pe"))
+    t = read_model(p, columns="Tgas_K=temperature")
+    assert solve_column(t, columns="Tgas_K=temperature").columns["temperature"] == "Tgas_K"
+
+
+def test_long_model_is_solved_in_chunks_with_progress(tmp_path, monkeypatch, capsys):
+    import ionbal.column as C
+
+    monkeypatch.setattr(C, "CHUNK_POINTS", 2)  # 3 points: two chunks
+    t = read_model(_model(tmp_path, ("depth", "T", "Pgas", "Pe")))
+    res = solve_column(t, progress=None)
+    np.testing.assert_array_equal(res.table["electron_density"],
+                                  ionbal.solve(T, gas_pressure=P).electron_density)
+    assert "ionbal column: 100.0% 3/3 pts" in capsys.readouterr().err  # not a terminal: a log line
+
+
+def test_cli_column_mapping_option(tmp_path, monkeypatch, capsys):
+    from ionbal.cli import main
+
+    p = _model(tmp_path, ("depth", "Tgas_K", "Pg_x", "Pe"))
+    monkeypatch.chdir(tmp_path)
+    assert main(["column", str(p), "-q", "-o", "o.csv", "--columns", "Tgas_K=temperature,Pg_x=gas_pressure"]) == 0
+    out = capsys.readouterr().out
+    assert "state input      gas_pressure <- 'Pg_x'" in out and "compared with    electron_pressure" in out
+    assert main(["column", str(p), "-q", "-o", "o2.csv"]) == 2
+    assert "--columns" in capsys.readouterr().err  # the CLI remedy, not the Python keyword
