@@ -384,10 +384,13 @@ def _add_column_command(sub) -> None:
         "column", help="ionization balance along a model-atmosphere depth structure",
         description="Read a depth structure (ECSV with units, or CSV / whitespace-separated text whose "
                     "header names the columns, cgs) with temperature and one of gas_pressure, mass_density, "
-                    "hydrogen_density, electron_pressure; write n_e, P_e, mu, rho and the fractions and number "
+                    "hydrogen_density, electron_pressure (or common spellings such as T, Pgas, rho, Pe; "
+                    "others with --columns); write n_e, P_e, mu, rho and the fractions and number "
                     "densities of the species at every depth point. Other columns pass through unchanged. "
-                    "An input electron_density or electron_pressure column is compared with ionbal's.",
-        epilog="Example: ionbal column model.txt -o model.ionbal.ecsv -o model.ionbal.h5")
+                    "An input electron_density or electron_pressure column is compared with ionbal's. "
+                    "The columns read, compared and passed through are printed.",
+        epilog="Examples: ionbal column model.txt -o model.ionbal.ecsv -o model.ionbal.h5; "
+               "ionbal column atm.csv --columns Tgas=temperature,Ptot=gas_pressure -o atm.ionbal.csv")
     p.add_argument("model", metavar="MODEL", help="the depth structure (.ecsv, .csv or whitespace text)")
     p.add_argument("-o", "--output", action="append", default=None, metavar="FILE",
                    help="output file: .ecsv (with units), .csv, .txt (fixed-width text) or .h5 (repeatable; "
