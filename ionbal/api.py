@@ -74,8 +74,8 @@ def default_mixture() -> Mixture:
 def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density=None, electron_pressure=None,
           mixture: Mixture | None = None, partition_functions: Mapping | None = None,
           ionization_energies: Mapping | None = None, h_minus: bool = True, tol: float = TOL,
-          max_iterations: int = MAX_ITER, errors: str = "raise", initial_electron_density=None
-          ) -> IonizationResult:
+          max_iterations: int = MAX_ITER, errors: str = "raise", initial_electron_density=None,
+          units: bool | None = None) -> IonizationResult:
     """Solve the LTE ionization balance of a mixture at given temperature and one more state variable.
 
     For every element of the mixture the Saha equation links each pair of
@@ -122,6 +122,10 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
         a status code and NaN results instead.
     initial_electron_density : float or array, optional
         Starting guess of n_e [cm^-3] (NaN = none).
+    units : bool, optional
+        Return astropy Quantities (cgs) for the dimensional outputs of the result.
+        Default: yes when the temperature or the state variable was given as a
+        Quantity, plain arrays for plain numbers.
 
     Returns
     -------
@@ -129,6 +133,8 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
     """
     if errors not in _ERRORS:
         raise ValueError(f"errors must be one of {_ERRORS}, got {errors!r}")
+    if units is not None and not isinstance(units, (bool, np.bool_)):
+        raise ValueError(f"units must be True, False or None (automatic), got {units!r}")
     inputs = {"gas_pressure": gas_pressure, "mass_density": mass_density, "hydrogen_density": hydrogen_density,
               "electron_pressure": electron_pressure}
     given = {name: inputs[name] for name in STATE_INPUTS if inputs[name] is not None}
@@ -137,6 +143,8 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
         got = ", ".join(given) or "none"
         raise ValueError(f"give exactly one state variable besides temperature ({names}); got {got}")
     (var, raw), = given.items()
+    if units is None:
+        units = any(hasattr(v, "unit") and hasattr(v, "to_value") for v in (temperature, raw))
     if mixture is None:
         mixture = default_mixture()
     if not isinstance(mixture, Mixture):
@@ -240,4 +248,4 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
     failed = code != st.OK
     x = np.where(failed & (code != st.MAX_ITERATIONS), np.nan, x)
     lnn = np.where(failed & (code != st.MAX_ITERATIONS), np.nan, lnn)
-    return IonizationResult(packed, shape, Tf, x, lnn, it.reshape(-1), code, var)
+    return IonizationResult(packed, shape, Tf, x, lnn, it.reshape(-1), code, var, units=bool(units))

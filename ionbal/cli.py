@@ -14,15 +14,17 @@ a non-zero exit status; ``--debug`` shows the traceback instead.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import sys
 from typing import Sequence
 
 import numpy as np
 
 from .plot_cli import add_plot_command
-from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, unit_text
+from .quantities import QUANTITIES, STATE_INPUTS
+from .state_report import format_state, state_record
 
-__all__ = ["main", "build_parser", "CLIError"]
+__all__ = ["main", "build_parser", "CLIError", "format_state", "state_record", "cli_wording"]
 
 
 class CLIError(Exception):
@@ -82,48 +84,6 @@ STATE_OPTIONS = tuple((n, QUANTITIES[n].flag, QUANTITIES[n].short_flag, QUANTITI
 # ionbal state
 # ---------------------------------------------------------------------------------------------------
 
-def _fmt_fraction(f: float) -> str:
-    return f"{f:.5f}" if f >= 1e-3 else f"{f:.2e}"
-
-
-def _quantity_lines(value) -> list[str]:
-    """One line per per-point output of the registry: symbol, value, unit."""
-    lines = []
-    for name in POINT_OUTPUTS:
-        q = QUANTITIES[name]
-        if q.unit in ("", "1"):
-            lines.append(f"  {q.symbol or name:<16} {value(name):.6f}")
-        else:
-            lines.append(f"  {q.symbol or name:<16} {value(name):.6e} {unit_text(q.unit)}")
-    return lines
-
-
-def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
-    """A readable summary of a 0-D :class:`~ionbal.IonizationResult`."""
-    import ionbal
-
-    r = result
-    f = lambda name: float(np.asarray(getattr(r, name)))  # noqa: E731
-    mix = r.mixture
-    lines = [
-        f"ionbal {ionbal.__version__}: LTE ionization balance (ideal gas, atoms and ions, no molecules)",
-        f"  mixture          {mix.name} ({len(mix.elements)} elements)",
-        f"  temperature      {f('temperature'):.6g} K",
-        f"  given            {r.state_variable.replace('_', ' ')}",
-        *_quantity_lines(f),
-        f"  status           {str(np.asarray(r.message))} ({int(np.asarray(r.iterations))} iterations)",
-        "",
-        f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g})",
-    ]
-    for el in (elements or mix.elements):
-        names = r.stages(el)
-        fr = np.asarray(r.fractions(el)).reshape(len(names))
-        dom = names[int(np.argmax(fr))]
-        shown = [f"{n} {_fmt_fraction(x)}" for n, x in zip(names, fr) if x >= min_fraction]
-        lines.append(f"  {el:<8} {dom:<10} " + "  ".join(shown))
-    return "\n".join(lines)
-
-
 def _cmd_state(args: argparse.Namespace) -> int:
     from .api import solve
 
@@ -140,8 +100,35 @@ def _cmd_state(args: argparse.Namespace) -> int:
         for el in elements:
             if el not in mix.elements:
                 raise CLIError(f"element {el} is not in the mixture")
+    if args.output:
+        from .io.formats import format_of
+        from .validate import check_output_path
+
+        fmt = format_of(args.output)
+        if fmt == "hdf5":
+            raise CLIError(f"output {args.output}: ionbal state writes .ecsv, .csv or .txt tables; "
+                           "for HDF5 use ionbal grid")
+        check_output_path(args.output, overwrite=args.overwrite)
+    _compile_note()
     result = solve(args.temperature, mixture=mix, **given)
-    print(format_state(result, min_fraction=args.min_fraction, elements=elements))
+    if args.json:
+        import json
+
+        print(json.dumps(state_record(result, elements=elements), indent=2))
+    else:
+        print(format_state(result, min_fraction=args.min_fraction, elements=elements))
+    if args.output:
+        from .io.tablefile import write_text_table
+        from .validity import bitmask
+
+        species = [s for el in (elements or mix.elements) for s in result.stages(el)]
+        table = result.to_table(species=species)
+        table["validity"] = np.atleast_1d(bitmask(result.validity)).astype(np.uint8)
+        table.meta["ionbal_command"] = _command_line()
+        write_text_table(table, args.output, fmt, overwrite=args.overwrite,
+                         comments=[f"ionbal state: command {_command_line()}", f"mixture: {mix.name}"])
+        if not args.json:
+            print(f"  wrote {args.output}")
     return 0
 
 
@@ -155,6 +142,20 @@ def _note(args: argparse.Namespace):
         if not getattr(args, "quiet", False):
             print(f"ionbal: {message}", file=sys.stderr)
     return note
+
+
+def _compile_note(args: argparse.Namespace | None = None, *, points: int = 1) -> None:
+    """Say so before numba compiles the kernels (first run only; otherwise a silent wait of 5-30 s)."""
+    if args is not None and getattr(args, "quiet", False):
+        return
+    from .api import SERIAL_POINTS
+    from .core.config import needs_compiling
+    from .core.solver import ion_moments_many, log_fractions_many, solve_few, solve_many
+
+    driver = solve_few if points <= SERIAL_POINTS else solve_many
+    if needs_compiling(driver, log_fractions_many, ion_moments_many):
+        print("ionbal: compiling kernels (first run only; about half a minute, cached afterwards)",
+              file=sys.stderr, flush=True)
 
 
 def _command_line(argv_name: str = "ionbal") -> str:
@@ -229,6 +230,9 @@ def _species_arg(args: argparse.Namespace):
 def _cmd_grid(args: argparse.Namespace) -> int:
     from .grid import parts_dir_for, run_grid
 
+    from .io.formats import check_grid_output_name
+
+    check_grid_output_name(args.output)
     spec = grid_spec_from_args(args)
     if args.scheduler and args.local_cluster:
         raise CLIError("give either --scheduler ADDRESS or --local-cluster, not both")
@@ -236,6 +240,7 @@ def _cmd_grid(args: argparse.Namespace) -> int:
         raise CLIError("--executor threads runs locally; it cannot be combined with --scheduler/--local-cluster")
     executor = "dask" if (args.scheduler or args.local_cluster) else args.executor
     progress = False if args.quiet else None
+    _compile_note(args, points=spec.n_points)
     try:
         run = run_grid(spec, args.output, overwrite=args.overwrite, discard_parts=args.discard_parts,
                        executor=executor, workers=args.workers, scheduler=args.scheduler,
@@ -280,12 +285,16 @@ def _cmd_column(args: argparse.Namespace) -> int:
         if Path(args.model).exists() and out.exists() and out.resolve() == Path(args.model).resolve():
             raise CLIError(f"output {out} is the model file itself; choose another name")
     mixture = mixture_from_args(args)
-    table = read_model(args.model)
-    result = solve_column(table, mixture=mixture, species=_species_arg(args), state=args.state)
+    table = read_model(args.model, columns=args.columns)
+    _compile_note(args, points=len(table))
+    result = solve_column(table, mixture=mixture, species=_species_arg(args), state=args.state,
+                          partial_pressures=args.partial_pressures,
+                          progress=False if args.quiet else None)
     written = [write_column(result, out, overwrite=args.overwrite, command=_command_line()) for out in outputs]
     n = len(result.table)
     print(f"ionbal column: {args.model}: {n} depth points, state input {result.state_variable}, mixture "
           f"{result.mixture_name}, {len(result.species)} species")
+    print(cli_wording("\n".join(result.input_lines())))
     for path in written:
         print(f"  wrote {path}")
     if result.comparisons:
@@ -326,7 +335,7 @@ def _add_grid_command(sub) -> None:
                       help="[alpha/M] values, e.g. 0,0.2,0.4")
     out = p.add_argument_group("output")
     out.add_argument("-o", "--output", default=DEFAULT_OUTPUT, metavar="FILE",
-                     help=f"HDF5 file to write (default {DEFAULT_OUTPUT})")
+                     help=f"HDF5 file to write: .h5, .hdf5 or .nc (default {DEFAULT_OUTPUT})")
     out.add_argument("--species", default=None, metavar="LIST",
                      help="species of the ion-fraction cube: 'default' (stages I-III of every element, and H-), "
                           "'all' (every stage), or a list such as 'H-,H I,Fe I,Fe II'")
@@ -375,18 +384,29 @@ def _add_column_command(sub) -> None:
         "column", help="ionization balance along a model-atmosphere depth structure",
         description="Read a depth structure (ECSV with units, or CSV / whitespace-separated text whose "
                     "header names the columns, cgs) with temperature and one of gas_pressure, mass_density, "
-                    "hydrogen_density, electron_pressure; write n_e, P_e, mu, rho and the fractions and number "
+                    "hydrogen_density, electron_pressure (or common spellings such as T, Pgas, rho, Pe; "
+                    "others with --columns); write n_e, P_e, mu, rho and the fractions and number "
                     "densities of the species at every depth point. Other columns pass through unchanged. "
-                    "An input electron_density or electron_pressure column is compared with ionbal's.",
-        epilog="Example: ionbal column model.txt -o model.ionbal.ecsv -o model.ionbal.h5")
+                    "An input electron_density or electron_pressure column is compared with ionbal's. "
+                    "The columns read, compared and passed through are printed.",
+        epilog="Examples: ionbal column model.txt -o model.ionbal.ecsv -o model.ionbal.h5; "
+               "ionbal column atm.csv --columns Tgas=temperature,Ptot=gas_pressure -o atm.ionbal.csv")
     p.add_argument("model", metavar="MODEL", help="the depth structure (.ecsv, .csv or whitespace text)")
     p.add_argument("-o", "--output", action="append", default=None, metavar="FILE",
-                   help="output file, .ecsv or .h5 (repeatable; default MODEL-STEM.ionbal.ecsv here)")
+                   help="output file: .ecsv (with units), .csv, .txt (fixed-width text) or .h5 (repeatable; "
+                        "default MODEL-STEM.ionbal.ecsv here)")
     p.add_argument("--state", choices=tuple(n for n, *_ in STATE_OPTIONS), default=None,
                    help="which state column to use (default: the first present of gas_pressure, mass_density, "
                         "hydrogen_density, electron_pressure)")
+    p.add_argument("--columns", default=None, metavar="COL=NAME,...",
+                   help="which column of the file is which quantity, e.g. T=temperature,Pg=gas_pressure "
+                        "(names: temperature, gas_pressure, mass_density, hydrogen_density, electron_pressure, "
+                        "electron_density); common spellings such as T, Pgas, rho, Pe, ne are recognised "
+                        "without it")
     p.add_argument("--species", default=None, metavar="LIST",
                    help="'default' (stages I-III of every element, and H-), 'all', or a list such as 'Fe I,Fe II'")
+    p.add_argument("--partial-pressures", action="store_true",
+                   help="also write the partial pressure n k T of every species (partial_pressure_Fe_II, ...)")
     add_mixture_options(p)
     p.add_argument("--overwrite", action="store_true", help="replace existing output files")
     p.add_argument("-q", "--quiet", action="store_true", help="print only the summary, not every depth point")
@@ -413,8 +433,10 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("state", help="ionization balance of one state, printed as a summary",
                        description="Solve one state (temperature plus one more state variable) and print "
-                                   "n_e, P_e, rho, mu and, per element, the dominant stage and the stage "
-                                   "fractions.")
+                                   "n_e, P_e, rho, mu, the validity flags of ideal-gas LTE Saha and, per "
+                                   "element, the dominant stage and the stage fractions.",
+                       epilog="Examples: ionbal state -T 5800 -P 1e5; ionbal state -T 20000 -P 1e12 --json; "
+                              "ionbal state -T 5800 -P 1e5 -o state.ecsv")
     p.add_argument("-T", "--temperature", type=float, required=True, help="temperature [K]")
     for name, flag, short, helptext in STATE_OPTIONS:
         p.add_argument(short, flag, dest=name, type=float, default=None, help=helptext)
@@ -423,6 +445,13 @@ def build_parser() -> argparse.ArgumentParser:
     out.add_argument("--elements", default=None, metavar="EL,EL,...", help="show only these elements")
     out.add_argument("--min-fraction", type=float, default=1e-4,
                      help="list the stages whose fraction exceeds this (default 1e-4)")
+    out.add_argument("--json", action="store_true",
+                     help="print everything as JSON (cgs values, units, validity flags, every stage fraction) "
+                          "for scripts")
+    out.add_argument("-o", "--output", default=None, metavar="FILE",
+                     help="also write the state as a one-row table: .ecsv (with units), .csv or .txt; columns "
+                          "named as in ionbal column files (fraction_Fe_II, number_density_Fe_II, ...)")
+    out.add_argument("--overwrite", action="store_true", help="replace an existing output file")
     p.set_defaults(func=_cmd_state)
 
     for extend in _EXTENSIONS:
@@ -457,6 +486,27 @@ def _join_negative_lists(argv: list) -> list:
     return out
 
 
+#: remedies that the layers below phrase for Python callers, and how a CLI user applies them
+_CLI_REMEDIES: tuple[tuple[str, str], ...] = (
+    (r"pass --overwrite \(overwrite=True\)", "pass --overwrite"),
+    (r"pass overwrite=True", "pass --overwrite"),
+    (r"; pass errors='mask' to get a status code instead", "; check the temperature and the state value"),
+    (r" \(or pass NaN with errors='mask'\)", ""),
+    (r"choose with state=\)", "choose with --state)"),
+    (r"columns=\{'([^']*)': '([^']*)'\}", r"--columns \1=\2"),
+    (r"\(use method='linear'\)", "(use linear interpolation)"),
+)
+
+
+def cli_wording(message: str) -> str:
+    """A message of the layers below, with Python-only remedies put as the CLI's options."""
+    import re
+
+    for pattern, repl in _CLI_REMEDIES:
+        message = re.sub(pattern, repl, message)
+    return message
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; returns the exit status."""
     argv = list(sys.argv[1:] if argv is None else argv)
@@ -473,10 +523,16 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("ionbal: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # e.g. `ionbal column ... | head`: the reader left; not an error of ours
+        import os
+
+        with contextlib.suppress(OSError):
+            os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except (CLIError, ValueError, TypeError, OSError, KeyError, ImportError) as exc:
         if debug:
             raise
-        msg = str(exc) or exc.__class__.__name__
+        msg = cli_wording(str(exc) or exc.__class__.__name__)
         if not msg.startswith("ionbal"):
             msg = f"ionbal: error: {msg}"
         print(msg.splitlines()[0] if msg else msg, file=sys.stderr)

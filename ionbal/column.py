@@ -34,13 +34,14 @@ from pathlib import Path
 import numpy as np
 
 from ._version import __version__
+from .core.constants import K_B
 from .io.atomic import atomic_output
 from .io.formats import format_of
-from .io.models import MODEL_UNITS, read_model
+from .io.models import MODEL_UNITS, parse_column_map, read_model, resolve_columns
 from .io.models import canonical_column_name as _canon
 from .io.provenance import data_sources
-from .io.tablefile import write_table_file
-from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit
+from .io.tablefile import write_table_file, write_text_table
+from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit, species_column_name, unit_of_astropy
 from .selection import resolve_species
 from .validate import check_output_path, outside_temperature_range, table_temperature_range
 
@@ -58,9 +59,6 @@ __all__ = [
 _COMPARED = ("electron_density", "electron_pressure")
 
 
-def species_column_name(prefix: str, species: str) -> str:
-    """Column name of a species quantity: ``fraction_Fe_II``, ``number_density_H_minus``."""
-    return f"{prefix}_{species.replace('-', '_minus').replace(' ', '_')}"
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -136,6 +134,29 @@ class ColumnResult:
     number_densities: np.ndarray
     comparisons: list = field(default_factory=list)
     mixture_name: str = ""
+    #: which column of the input became which quantity: registry name -> column name in the model file
+    columns: dict = field(default_factory=dict)
+    #: input columns passed through unchanged (not read by ionbal)
+    passed_through: tuple = ()
+    #: notes on the choice of columns (e.g. a comparison column used as the state input)
+    notes: tuple = ()
+    #: name of the temperature column in :attr:`table`
+    temperature_column: str = "temperature"
+
+    def input_lines(self) -> list[str]:
+        """Which columns were read as what: the state input, the compared columns, the rest."""
+        def src(q):
+            name = self.columns.get(q, q)
+            return q if name == q else f"{q} <- {name!r}"
+        compared = [c.quantity for c in self.comparisons]
+        lines = [f"  temperature      {src('temperature')}",
+                 f"  state input      {src(self.state_variable)}"]
+        if compared:
+            lines.append(f"  compared with    {', '.join(src(q) for q in compared)}")
+        if self.passed_through:
+            lines.append(f"  passed through   {', '.join(self.passed_through)}")
+        lines += [f"  note: {n}" for n in self.notes]
+        return lines
 
     def deviation_lines(self) -> list[str]:
         """Per-depth-point comparison lines (empty without comparisons)."""
@@ -156,14 +177,9 @@ class ColumnResult:
         return lines
 
     def _tname(self) -> str:
+        if self.temperature_column in self.table.colnames:
+            return self.temperature_column
         return next(n for n in self.table.colnames if _canon(n) == "temperature")
-
-
-def _find(table, canon: str) -> str | None:
-    for n in table.colnames:
-        if _canon(n) == canon:
-            return n
-    return None
 
 
 def _where(table, i: int) -> str:
@@ -173,7 +189,51 @@ def _where(table, i: int) -> str:
     return f"depth point {i} (data row {i + 1})"
 
 
-def solve_column(table, *, mixture=None, species="default", state: str | None = None) -> ColumnResult:
+#: depth points solved at once (bounded memory; the unit of progress of long models)
+CHUNK_POINTS = 20_000
+
+
+def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress) -> dict:
+    """Solve the depth points in chunks: the per-point outputs, status, iterations, validity bitmask,
+    fractions and number densities of the species, as plain arrays over all points."""
+    from .api import solve
+    from .grid.progress import Progress
+    from .validity import bitmask
+
+    n = len(T)
+    got = {name: np.empty(n) for name in set(outputs) | set(_COMPARED)}
+    got["status"] = np.empty(n, dtype=np.int8)
+    got["iterations"] = np.empty(n, dtype=np.int32)
+    got["validity"] = np.empty(n, dtype=np.uint8)
+    got["fractions"] = np.empty((len(sp_names), n))
+    got["number_densities"] = np.empty((len(sp_names), n))
+    bar = Progress(n, enabled=False if (progress is False or n <= CHUNK_POINTS) else progress,
+                   label="ionbal column")
+    try:
+        for a in range(0, n, CHUNK_POINTS):
+            b = min(n, a + CHUNK_POINTS)
+            r = solve(T[a:b], mixture=mix, errors="mask", units=False, **{sv: X[a:b]})
+            status = np.asarray(r.status)
+            if (status != 0).any():
+                i = int(np.flatnonzero(status != 0)[0])
+                raise ValueError(f"no converged solution at {where(a + i)} (T={T[a + i]:g} K, {sv}="
+                                 f"{X[a + i]:g}): {r.message[i]}")
+            for name in got:
+                if name in QUANTITIES and QUANTITIES[name].compute is not None:
+                    got[name][a:b] = r[name]
+            got["status"][a:b] = status
+            got["iterations"][a:b] = r.iterations
+            got["validity"][a:b] = bitmask(r.validity)
+            got["fractions"][:, a:b] = r.species_fractions(sp_names)
+            got["number_densities"][:, a:b] = r.number_densities(sp_names, fractions=got["fractions"][:, a:b])
+            bar.update(b - a)
+    finally:
+        bar.close()
+    return got
+
+
+def solve_column(table, *, mixture=None, species="default", state: str | None = None, columns=None,
+                 partial_pressures: bool = False, progress: bool | None = False) -> ColumnResult:
     """Solve the ionization balance at every depth point of a model table.
 
     Parameters
@@ -187,17 +247,34 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     state : str, optional
         Which state column to use; default the first present of
         gas_pressure, mass_density, hydrogen_density, electron_pressure.
+    columns : mapping or str, optional
+        Which column is which quantity, e.g. ``{"Tgas": "temperature"}`` or
+        ``"Tgas=temperature,Pg=gas_pressure"``, for names that are neither the
+        registry names nor their aliases (:data:`ionbal.io.models.ALIASES`).
+    partial_pressures : bool
+        Also write the partial pressure of every species (``partial_pressure_Fe_II``).
+    progress : bool or None
+        Progress on stderr for models longer than :data:`CHUNK_POINTS` (solved chunk by
+        chunk): ``None`` a bar on a terminal and periodic lines elsewhere, ``False`` (default) none.
+
+    The columns used, those passed through and notes on the choice are in the
+    result (:meth:`ColumnResult.input_lines`); nothing is chosen silently.
     """
     from astropy.table import Table
 
-    from .api import default_mixture, solve
+    from .api import default_mixture
 
     mix = default_mixture() if mixture is None else mixture
-    tname = _find(table, "temperature")
+    origin = dict(table.meta.get("ionbal_columns") or {})
+    if columns is not None and origin:  # entries read_model has applied already (renamed) are dropped
+        columns = {k: v for k, v in parse_column_map(columns).items() if origin.get(v) != k}
+    used = resolve_columns(table.colnames, columns)
+    tname = used.get("temperature")
     if tname is None:
         raise ValueError(f"the model has no temperature column; it has {', '.join(table.colnames)}; "
-                         f"name the columns temperature and one of {', '.join(STATE_INPUTS)}")
-    present = [s for s in STATE_INPUTS if _find(table, s) is not None]
+                         f"name the columns temperature and one of {', '.join(STATE_INPUTS)} (or map them: "
+                         "columns={'Tgas': 'temperature'})")
+    present = [s for s in STATE_INPUTS if s in used]
     if state is not None:
         if state not in STATE_INPUTS:
             raise ValueError(f"state column must be one of {', '.join(STATE_INPUTS)}, got {state!r}")
@@ -208,8 +285,15 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         sv = present[0]
     else:
         raise ValueError(f"the model needs one of the columns {', '.join(STATE_INPUTS)} besides temperature; "
-                         f"it has {', '.join(table.colnames)}")
-    sname = _find(table, sv)
+                         f"it has {', '.join(table.colnames)} (map one: columns={{'Pg': 'gas_pressure'}})")
+    sname = used[sv]
+    notes = []
+    others = [s for s in present if s != sv and s not in _COMPARED]
+    if others:
+        notes.append(f"{', '.join(others)} also present; {sv} is the state input"
+                     + ("" if state else " (the first of " + ", ".join(STATE_INPUTS) + "; choose with state=)"))
+    if sv in _COMPARED:
+        notes.append(f"{sv} is the state input, so it is not compared with ionbal's")
     T = np.asarray(table[tname], dtype=np.float64)
     X = np.asarray(table[sname], dtype=np.float64)
     for name, arr in ((tname, T), (sname, X)):
@@ -225,39 +309,35 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         raise ValueError(f"temperature {T[i]:g} K at {_where(table, i)} is outside the partition-function "
                          f"tables ({t_lo:.4g}-{t_hi:.4g} K)")
     sp_names = resolve_species(mix, species)
-    r = solve(T, mixture=mix, errors="mask", **{sv: X})
-    status = np.asarray(r.status)
-    if (status != 0).any():
-        i = int(np.flatnonzero(status != 0)[0])
-        raise ValueError(f"no converged solution at {_where(table, i)} (T={T[i]:g} K, {sv}={X[i]:g}): "
-                         f"{r.message[i]}")
-
     outputs = [name for name in POINT_OUTPUTS if name != sv]
+    got = _solve_rows(T, X, sv, mix, sp_names, outputs, lambda i: _where(table, i), progress)
+    status = got["status"]
+
     res = Table(meta={k: v for k, v in table.meta.items() if k != "line_numbers"})
+    read = set(used.values())
     for name in table.colnames:
         c = _canon(name)
         new = name
-        if c in outputs or c in ("status", "iterations", "validity") or c.startswith(("fraction_", "number_density_")):
+        if c in outputs or c in ("status", "iterations", "validity") or c.startswith(("fraction_", "number_density_",
+                                                                                        "partial_pressure_")):
             new = f"input_{name}"
         res[new] = table[name]
     for name in outputs:
-        res[name] = np.asarray(r[name], dtype=np.float64)
+        res[name] = got[name]
         if QUANTITIES[name].unit not in ("", "1"):
             res[name].unit = astropy_unit(name)
     res["status"] = status.astype(np.int8)
-    res["iterations"] = np.asarray(r.iterations, dtype=np.int32)
-    from .validity import bitmask
-
-    res["validity"] = np.asarray(bitmask(r.validity), dtype=np.uint8)
+    res["iterations"] = got["iterations"]
+    res["validity"] = got["validity"]
     res["validity"].description = "validity flags of ideal-gas LTE Saha (bitmask, see ionbal.validity)"
 
     comparisons = []
     for q in _COMPARED:
-        iname = _find(table, q)
+        iname = used.get(q)
         if iname is None or q == sv:
             continue
         ref = np.asarray(table[iname], dtype=np.float64)
-        ours = np.asarray(getattr(r, q), dtype=np.float64)
+        ours = got[q]
         ok = np.isfinite(ref) & (ref > 0)
         with np.errstate(divide="ignore", invalid="ignore"):
             pct = np.where(ok, 100.0 * (ours / ref - 1.0), np.nan)
@@ -267,18 +347,25 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         res[f"{q}_deviation_percent"] = pct
         res[f"{q}_deviation_dex"] = dex
 
-    frac = r.species_fractions(sp_names).reshape(len(sp_names), len(T))
-    dens = r.number_densities(sp_names, fractions=frac).reshape(len(sp_names), len(T))
+    frac, dens = got["fractions"], got["number_densities"]
     for k, name in enumerate(sp_names):
         res[species_column_name("fraction", name)] = frac[k]
     for k, name in enumerate(sp_names):
         res[species_column_name("number_density", name)] = dens[k]
         res[species_column_name("number_density", name)].unit = astropy_unit("number_density")
+    if partial_pressures:
+        kT = K_B * T
+        for k, name in enumerate(sp_names):
+            res[species_column_name("partial_pressure", name)] = dens[k] * kT
+            res[species_column_name("partial_pressure", name)].unit = astropy_unit("partial_pressure")
     res.meta["ionbal_state_variable"] = sv
     res.meta["ionbal_mixture"] = mix.name
     res.meta["ionbal_species"] = list(sp_names)
     res.meta["ionbal_abundances"] = {el: float(a) for el, a in zip(mix.elements, mix.log_eps)}
-    return ColumnResult(res, sv, sp_names, frac, dens, comparisons, mix.name)
+    sources = {q: origin.get(q, name) for q, name in used.items()}
+    passed = tuple(n for n in table.colnames if n not in read)
+    return ColumnResult(res, sv, sp_names, frac, dens, comparisons, mix.name, sources, passed, tuple(notes),
+                        tname if tname in res.colnames else f"input_{tname}")
 
 
 # ---------------------------------------------------------------------------------------------------
@@ -287,14 +374,22 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
 
 
 def check_output(path, *, overwrite: bool = False) -> str:
-    """Check that a column result can be written to ``path``; returns its format ("ecsv" or "hdf5")."""
+    """Check that a column result can be written to ``path``; returns its format (see :data:`FORMATS`)."""
     fmt = format_of(path)
     check_output_path(path, overwrite=overwrite)
     return fmt
 
 
 def write_column(result: ColumnResult, path, *, overwrite: bool = False, command: str | None = None) -> Path:
-    """Write a column result as ECSV (``.ecsv``) or HDF5 (``.h5``/``.hdf5``/``.nc``), atomically.
+    """Write a column result, atomically, in the format of its extension:
+
+    * ``.ecsv``: astropy's ECSV, with units and metadata;
+    * ``.csv``: comma-separated values with one header line of column names (values in cgs, the
+      units of the registry; no comment lines, so spreadsheets and ``pandas.read_csv`` read it);
+    * ``.txt`` / ``.dat``: a fixed-width table, columns separated by blanks, preceded by ``#``
+      comment lines with the units of every column and the provenance (``ionbal column`` reads
+      it back; so do ``numpy.loadtxt(..., skiprows=...)``-style readers of other codes);
+    * ``.h5`` / ``.hdf5`` / ``.nc``: netCDF-4 style HDF5.
 
     An existing file is replaced only with ``overwrite`` and only once the new
     one is complete.
@@ -303,6 +398,9 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
     path = Path(path)
     fmt = check_output(path, overwrite=overwrite)
     meta_extra = {"ionbal_version": __version__, "ionbal_command": command or "ionbal.column.write_column"}
+    if fmt in ("csv", "text"):
+        _write_text_table(result, path, fmt, overwrite=overwrite, meta_extra=meta_extra)
+        return path
     if fmt == "ecsv":
         t = result.table.copy(copy_data=False)
         t.meta.update(meta_extra)
@@ -335,12 +433,17 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
     return path
 
 
+def _write_text_table(result: ColumnResult, path: Path, fmt: str, *, overwrite: bool, meta_extra: dict) -> None:
+    comments = [f"ionbal {meta_extra['ionbal_version']}: LTE ionization balance of a model-atmosphere column",
+                f"command: {meta_extra['ionbal_command']}",
+                f"mixture: {result.mixture_name}; state input: {result.state_variable}",
+                *[c.summary() for c in result.comparisons]]
+    write_text_table(result.table, path, fmt, overwrite=overwrite, comments=comments)
+
+
 def _unit_string(unit) -> str:
     """The ``units`` attribute of a column in an HDF5 file: the registry's spelling (``"dyn cm-2"``)."""
-    for q in QUANTITIES.values():
-        if q.unit not in ("", "1") and astropy_unit(q.unit) == unit:
-            return q.unit
-    return unit.to_string()
+    return unit_of_astropy(unit)
 
 
 def default_output(model_path) -> Path:

@@ -40,6 +40,8 @@ __all__ = [
     "astropy_unit",
     "long_name",
     "unit_text",
+    "species_column_name",
+    "unit_of_astropy",
 ]
 
 KINDS = ("state", "point", "species", "axis", "label", "meta")
@@ -123,6 +125,8 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
     _q("ion_fraction", "1", "ion fraction", "fraction of the element's nuclei in this ionization stage",
        kind="species"),
     _q("number_density", "cm-3", "number density", "number density of the species", kind="species"),
+    _q("partial_pressure", "dyn cm-2", "partial pressure", "partial pressure of the species, n k T",
+       kind="species"),
     # --- solver bookkeeping, composition axes, coordinates and tables of files
     _q("status", "1", "solver status", "solver status per point", kind="meta", dtype="int8"),
     _q("iterations", "1", "solver iterations", "solver iterations per point", kind="meta", dtype="int32"),
@@ -187,3 +191,21 @@ def long_name(name: str) -> str:
 def unit_text(text: str) -> str:
     """A unit for people: ``"dyn cm-2"`` -> ``"dyn cm^-2"``."""
     return re.sub(r"([A-Za-z])(-?\d+)", r"\1^\2", text)
+
+
+def species_column_name(quantity: str, species) -> str:
+    """The one column name of a per-species quantity in tables and files: ``fraction_Fe_II``.
+
+    ``quantity`` is ``"fraction"`` or a per-species quantity of the registry (``number_density``,
+    ``partial_pressure``); ``H-`` becomes ``H_minus`` (``number_density_H_minus``).
+    """
+    label = str(species)
+    return f"{quantity}_{label.replace('-', '_minus').replace(' ', '_')}"
+
+
+def unit_of_astropy(u) -> str:
+    """The registry's spelling of an astropy unit (``"dyn cm-2"``), else astropy's own string."""
+    for q in QUANTITIES.values():
+        if q.unit not in ("", "1") and _astropy_unit(q.unit) == u:
+            return q.unit
+    return u.to_string()

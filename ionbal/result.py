@@ -18,7 +18,8 @@ from .core.solver import ion_moments_many, log_fractions_many
 from .data.mixture import Mixture
 from .data.pack import PackedMixture
 from .data.species import parse_species
-from .quantities import POINT_OUTPUTS, QUANTITIES, SolvedState, astropy_unit
+from .quantities import POINT_OUTPUTS, QUANTITIES, SolvedState, astropy_unit, species_column_name
+from .selection import resolve_species
 
 __all__ = ["IonizationResult"]
 
@@ -33,10 +34,19 @@ class IonizationResult:
     densities in cm^-3, pressures in dyn cm^-2, mass density in g cm^-3,
     temperature in K.  Stage fractions and number densities are computed on
     request from (T, n_e), which determine them completely.
+
+    With ``units`` (:func:`ionbal.solve` sets it when an input was an astropy
+    Quantity, or on request) every dimensional output (temperature, densities,
+    pressures, number and partial densities) is an astropy Quantity in its cgs
+    unit; dimensionless ones (fractions, mean molecular weight, mean charge,
+    status, iterations) stay plain arrays.  Without it everything is a plain
+    array in cgs.
     """
 
     def __init__(self, packed: PackedMixture, shape: tuple, temperature: np.ndarray, x: np.ndarray,
-                 ln_nuclei: np.ndarray, iterations: np.ndarray, status: np.ndarray, state_variable: str):
+                 ln_nuclei: np.ndarray, iterations: np.ndarray, status: np.ndarray, state_variable: str,
+                 *, units: bool = False):
+        self.units = bool(units)
         self._packed = packed
         self.shape = tuple(shape)
         self._T = temperature  # flat
@@ -65,7 +75,20 @@ class IonizationResult:
         return name in self.keys()
 
     def __getitem__(self, name: str) -> np.ndarray:
-        """A per-point quantity by name, e.g. ``result["gas_pressure"]`` (shape :attr:`shape`)."""
+        """A per-point quantity by name, e.g. ``result["gas_pressure"]`` (shape :attr:`shape`).
+
+        A Quantity when the result has :attr:`units` and the quantity a dimension.
+        """
+        return self._out(self._plain(name), name)
+
+    def _out(self, values: np.ndarray, name: str):
+        """``values`` as the caller gets them: a Quantity in the unit of ``name`` with :attr:`units`."""
+        if self.units and QUANTITIES[name].unit not in ("", "1"):
+            return values * astropy_unit(name)
+        return values
+
+    def _plain(self, name: str) -> np.ndarray:
+        """A per-point quantity as a plain cgs array (what the other methods compute with)."""
         if name not in self._flat:
             q = QUANTITIES.get(name)
             if q is None or q.compute is None:
@@ -85,8 +108,8 @@ class IonizationResult:
         raise AttributeError(f"'IonizationResult' object has no attribute {name!r}")
 
     def quantity(self, name: str):
-        """A per-point quantity as an astropy Quantity in its registry unit."""
-        return self[name] * astropy_unit(name)
+        """A per-point quantity as an astropy Quantity in its registry unit (whatever :attr:`units` says)."""
+        return self._plain(name) * astropy_unit(name)
 
     # -- plain arrays ------------------------------------------------------------------------------
     @property
@@ -142,12 +165,12 @@ class IonizationResult:
     @property
     def converged(self) -> np.ndarray:
         """True where the solve converged."""
-        return st.success(self.status)
+        return st.success(self._plain("status"))
 
     @property
     def message(self) -> np.ndarray:
         """Per-point status message."""
-        return st.messages(self.status)
+        return st.messages(self._plain("status"))
 
     @property
     def iterations(self) -> np.ndarray:
@@ -177,6 +200,12 @@ class IonizationResult:
 
     # -- species: the one place that maps a species to the packed arrays ---------------------------
     def _species(self, species):
+        # a bare element symbol would parse as the neutral atom: refuse it rather than guess
+        text = species.strip() if isinstance(species, str) else ""
+        if text.isalpha() and len(text) <= 2 and text.capitalize() in self._packed.mixture.elements:
+            el = text.capitalize()
+            raise ValueError(f"{species!r} is an element, not a species; name the stage, e.g. '{el} I' or "
+                             f"'{el} II', or use fractions('{el}') for all its stages")
         sp = parse_species(species)
         if getattr(sp, "is_molecule", False):  # pragma: no cover - molecules are not solved yet
             raise ValueError(f"{sp} is a molecule; this solve has atoms and atomic ions only")
@@ -255,7 +284,13 @@ class IonizationResult:
     def number_density(self, species) -> np.ndarray:
         """Number density of one species [cm^-3], e.g. ``number_density("H-")``."""
         sp = self._species(species)
-        return self.fraction(sp) * self.nuclei_density * self._weight(sp)
+        return self._out(self.fraction(sp) * self._plain("nuclei_density") * self._weight(sp), "number_density")
+
+    def partial_pressure(self, species) -> np.ndarray:
+        """Partial pressure of one species, n k T [dyn cm^-2], e.g. ``partial_pressure("H I")``."""
+        sp = self._species(species)
+        n = self.fraction(sp) * self._plain("nuclei_density") * self._weight(sp)
+        return self._out(n * K_B * self._plain("temperature"), "partial_pressure")
 
     def number_densities(self, species, fractions: np.ndarray | None = None) -> np.ndarray:
         """Number densities of many species [cm^-3], shape ``(len(species), *shape)``.
@@ -264,12 +299,12 @@ class IonizationResult:
         """
         names = [self._species(s) for s in species]
         frac = self.species_fractions(names) if fractions is None else fractions
-        nuclei = self.nuclei_density
+        nuclei = self._plain("nuclei_density")
         out = np.empty((len(names),) + self.shape)
         with np.errstate(under="ignore", over="ignore", invalid="ignore"):
             for k, sp in enumerate(names):
                 out[k] = frac[k] * nuclei * self._weight(sp)
-        return out
+        return self._out(out, "number_density")
 
     def mean_charge(self, element) -> np.ndarray:
         """Mean charge of one element's nuclei (including H- for hydrogen)."""
@@ -308,28 +343,45 @@ class IonizationResult:
         return s_q2, s_q53, s_pos
 
     # -- tables ------------------------------------------------------------------------------------
-    def to_table(self, species=None):
-        """An astropy Table of the state (0-D and 1-D results only).
+    def to_table(self, species=None, *, partial_pressures: bool = False):
+        """An astropy QTable of the state (0-D and 1-D results only), in cgs units.
 
         Parameters
         ----------
-        species : iterable of species names, optional
-            Species whose fractions and number densities to add as columns.
+        species : "default", "all", a name, a comma-separated list or an iterable of names, optional
+            Species whose fractions and number densities to add as columns
+            (``"default"``: stages I-III of every element and H-; ``"all"``: every stage).
+        partial_pressures : bool
+            Also add the partial pressure of each of these species.
+
+        Columns are named as in ``ionbal column`` files: ``electron_density``, ...,
+        ``fraction_Fe_II``, ``number_density_Fe_II``, ``partial_pressure_Fe_II``
+        (:func:`ionbal.quantities.species_column_name`).
         """
         from astropy.table import QTable
 
         if len(self.shape) > 1:
             raise ValueError(f"to_table() needs a 0-D or 1-D result; this one has shape {self.shape}")
+        names = () if species is None else resolve_species(self.mixture, species)
         t = QTable()
-        t["temperature"] = np.atleast_1d(self.temperature) * astropy_unit("temperature")
+        t["temperature"] = np.atleast_1d(self._plain("temperature")) * astropy_unit("temperature")
         for name in POINT_OUTPUTS:
-            t[name] = np.atleast_1d(self[name]) * astropy_unit(name)
-        for sp in species or ():
-            name = str(parse_species(sp))
-            t[f"fraction {name}"] = np.atleast_1d(self.fraction(name))
-            t[f"n {name}"] = np.atleast_1d(self.number_density(name)) * astropy_unit("number_density")
-        t["status"] = np.atleast_1d(self.status)
-        t["iterations"] = np.atleast_1d(self.iterations)
+            t[name] = np.atleast_1d(self._plain(name)) * astropy_unit(name)
+        if names:
+            frac = self.species_fractions(names).reshape(len(names), -1)
+            nuclei = np.atleast_1d(self._plain("nuclei_density"))
+            kT = K_B * np.atleast_1d(self._plain("temperature"))
+            for k, name in enumerate(names):
+                t[species_column_name("fraction", name)] = frac[k]
+            for k, name in enumerate(names):
+                dens = frac[k] * nuclei * self._weight(self._species(name))
+                t[species_column_name("number_density", name)] = dens * astropy_unit("number_density")
+            if partial_pressures:
+                for k, name in enumerate(names):
+                    dens = frac[k] * nuclei * self._weight(self._species(name))
+                    t[species_column_name("partial_pressure", name)] = dens * kT * astropy_unit("partial_pressure")
+        t["status"] = np.atleast_1d(self._plain("status"))
+        t["iterations"] = np.atleast_1d(self._plain("iterations"))
         t.meta["mixture"] = self.mixture.name
         t.meta["state_variable"] = self.state_variable
         return t

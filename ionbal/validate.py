@@ -134,8 +134,7 @@ def check_output_path(path, *, overwrite: bool = False) -> Path:
     if path.exists() and path.is_dir():
         raise IsADirectoryError(f"output {path} is a directory; give a file name")
     if path.exists() and not overwrite:
-        raise FileExistsError(f"output {path} already exists; pass --overwrite (overwrite=True) to "
-                              "replace it")
+        raise FileExistsError(f"output {path} already exists; pass overwrite=True to replace it")
     parent = path.parent if str(path.parent) else Path(".")
     if not parent.is_dir():
         raise FileNotFoundError(f"cannot write {path}: directory {parent} does not exist")

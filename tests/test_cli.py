@@ -220,9 +220,9 @@ def _malformed_models(rng: random.Random, n: int):
         if kind == 0:  # a required column misnamed (rows keep the same width)
             h = list(header)
             if rng.random() < 0.5:
-                h[1] = rng.choice(["temp", "T", "Teff", "x"])
+                h[1] = rng.choice(["Teff", "Tgas", "x", "tau"])  # not aliases of temperature (ionbal.io.models.ALIASES)
             else:  # no state column left at all
-                h[2], h[3] = rng.choice(["pressure", "Pgas", "p"]), rng.choice(["pe", "Pe", "elec_p"])
+                h[2], h[3] = rng.choice(["ptot", "P_turb", "q"]), rng.choice(["pel", "e_p", "elec_p"])  # no aliases
             text = " ".join(h) + "\n" + "\n".join(" ".join(r) for r in body)
         elif kind == 1:  # a bad temperature or pressure value
             r = rng.randrange(len(body))
@@ -332,7 +332,7 @@ def test_fuzz_argument_lists(in_tmp, capsys, no_computing):
     for _ in range(40):
         cases.append(rng.choice([["info", "junk.h5"], ["info", "nothing.h5"], ["info", "model.txt"],
                                  ["column", "model.txt", "--state", "mass_density"],
-                                 ["column", "model.txt", "-o", "x.txt"], ["column", "junk.h5"],
+                                 ["column", "model.txt", "-o", "x.fits"], ["column", "junk.h5"],
                                  ["state", "-T", "abc"], ["grid", "--tile-size"], ["column", "model.txt",
                                                                                    "--species", "Fe 9"]]))
     for args in cases:

@@ -53,3 +53,54 @@ def test_help(capsys):
         main(["state", "--help"])
     assert exc.value.code == 0
     assert "--gas-pressure" in capsys.readouterr().out
+
+
+def test_state_shows_validity_cautions(capsys):
+    # 20,000 K and 1e12 dyn cm^-2: Debye lowering and pressure ionization matter (ionbal.validity)
+    assert main(["state", "-T", "20000", "-P", "1e12", "--elements", "H"]) == 0
+    out = capsys.readouterr().out
+    assert "CAUTION: 2 flag(s) raised" in out
+    assert "debye_lowering" in out and "pressure_ionization" in out
+    assert main(["state", "-T", "5800", "-P", "1e5", "--elements", "H"]) == 0
+    assert "no flag raised" in capsys.readouterr().out
+
+
+def test_state_json(capsys):
+    import json
+
+    import ionbal
+
+    assert main(["state", "-T", "20000", "-P", "1e12", "--elements", "H,Fe", "--json"]) == 0
+    rec = json.loads(capsys.readouterr().out)
+    r = ionbal.solve(20000.0, gas_pressure=1e12)
+    assert rec["electron_density"] == pytest.approx(float(r.electron_density), rel=1e-14)
+    assert rec["units"]["electron_density"] == "cm-3"
+    assert rec["validity"]["flags"]["debye_lowering"] and not rec["validity"]["trustworthy"]
+    assert rec["fractions"]["Fe II"] == pytest.approx(float(r.fraction("Fe II")), rel=1e-14)
+    assert set(rec["fractions"]) == {"H-", "H I", "H II"} | {f"Fe {k}" for k in
+                                                             ("I II III IV V VI VII VIII IX X XI XII XIII "
+                                                              "XIV XV XVI XVII XVIII XIX XX XXI XXII XXIII "
+                                                              "XXIV XXV XXVI XXVII").split()}
+
+
+@pytest.mark.parametrize("name", ["state.ecsv", "state.csv", "state.txt"])
+def test_state_output_table(tmp_path, monkeypatch, capsys, name):
+    from astropy.table import Table
+
+    monkeypatch.chdir(tmp_path)
+    assert main(["state", "-T", "5800", "-P", "1e5", "--elements", "Fe", "-o", name]) == 0
+    fmt = {"state.ecsv": "ascii.ecsv", "state.csv": "ascii.csv", "state.txt": "ascii.fixed_width"}[name]
+    kw = {"delimiter": " ", "bookend": False} if name.endswith(".txt") else {}
+    t = Table.read(tmp_path / name, format=fmt, **kw)
+    assert len(t) == 1 and "fraction_Fe_II" in t.colnames and "validity" in t.colnames
+    assert main(["state", "-T", "5800", "-P", "1e5", "-o", name]) == 2
+    err = capsys.readouterr().err
+    assert "pass --overwrite" in err and "overwrite=True" not in err  # CLI wording, not Python's
+    assert main(["state", "-T", "5800", "-P", "1e5", "-o", "s.h5"]) == 2
+
+
+def test_cli_errors_use_cli_wording(capsys):
+    # no physical solution: the API suggests errors='mask', which the CLI has no use for
+    assert main(["state", "-T", "3000", "-e", "1e6", "--only", "H"]) == 2
+    err = capsys.readouterr().err
+    assert "errors=" not in err

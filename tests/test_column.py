@@ -80,7 +80,7 @@ def test_state_choice_and_other_inputs(tmp_path):
     assert solve_column(m).state_variable == "gas_pressure"  # first in order; names matched ignoring case
     res = solve_column(m, state="mass_density")
     assert res.state_variable == "mass_density"
-    assert "input_Gas_Pressure" in res.table.colnames  # collides with an output: renamed
+    assert "input_gas_pressure" in res.table.colnames  # read as gas_pressure; collides with an output
     np.testing.assert_allclose(res.table["gas_pressure"], P, rtol=1e-10)
     with pytest.raises(ValueError, match="no hydrogen_density column"):
         solve_column(m, state="hydrogen_density")

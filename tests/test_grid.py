@@ -349,10 +349,27 @@ def test_progress_bar_format():
     assert "50.0%" in text and "500/1,000" in text and "pts/s" in text and "left" in text
     assert text.endswith("\n")
     quiet = io.StringIO()
-    bar = G.Progress(10, stream=quiet)  # not a terminal: silent
+    bar = G.Progress(10, stream=quiet, enabled=False)  # --quiet: silent
     bar.update(10)
     bar.close()
     assert quiet.getvalue() == ""
+
+
+def test_progress_lines_when_not_a_terminal(monkeypatch):
+    # a batch log (not a terminal) gets whole lines at a fixed period and one at the end
+    import ionbal.grid.progress as P
+
+    now = [0.0]
+    monkeypatch.setattr(P.time, "monotonic", lambda: now[0])
+    log = io.StringIO()
+    bar = G.Progress(100, stream=log, line_interval=10.0)
+    for _ in range(10):  # 10 updates, 4 s apart: a line at 12, 24 and 36 s, and the last one
+        now[0] += 4.0
+        bar.update(10)
+    bar.close()
+    lines = log.getvalue().splitlines()
+    assert len(lines) == 4 and "\r" not in log.getvalue()
+    assert lines[-1].startswith("ionbal grid: 100.0% 100/100 pts") and "pts/s" in lines[-1]
 
 
 # --------------------------------------------------------------------------------------------------

@@ -324,3 +324,26 @@ def test_data_sources_have_provenance():
     src = gio.data_sources()
     assert {"ionization_energies.ecsv", "partition_functions.ecsv", "abundances.ecsv"} <= set(src)
     assert "NIST" in json.dumps(src["ionization_energies.ecsv"].get("source", ""))
+
+
+def test_linear_interpolation_is_multilinear_in_the_logs(tmp_path):
+    # scipy's RegularGridInterpolator does the work; check it against the textbook bilinear formula
+    # in (ln T, ln P) of ln n_e at one cell (common practice: multilinear interpolation)
+    import ionbal
+    from ionbal.grid import Axis, GridSpec, run_grid
+
+    spec = GridSpec(Axis.parse("temperature", "4000:8000:3"), Axis.parse("gas_pressure", "1e2:1e4:3"),
+                    ionbal.Mixture.solar())
+    out = tmp_path / "g.h5"
+    run_grid(spec, out, progress=False)
+    T, P = 5123.0, 345.0
+    with ionbal.open_grid(out) as g:
+        ne = np.log(g["electron_density"])
+        tx, px = np.log(g.axes["temperature"]), np.log(g.axes["gas_pressure"])
+        got = g.interpolate("electron_density", T, P)
+    i, j = 0, 0
+    u_ = (np.log(T) - tx[i]) / (tx[i + 1] - tx[i])
+    v_ = (np.log(P) - px[j]) / (px[j + 1] - px[j])
+    want = ((1 - u_) * (1 - v_) * ne[i, j] + u_ * (1 - v_) * ne[i + 1, j] + (1 - u_) * v_ * ne[i, j + 1]
+            + u_ * v_ * ne[i + 1, j + 1])
+    assert float(got) == pytest.approx(np.exp(want), rel=1e-13)

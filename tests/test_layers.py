@@ -53,7 +53,7 @@ LAYERS = {
     "quantities": 3, "result": 3, "validate": 3, "selection": 3,
     "io": 4,
     "grid": 4.5, "column": 4.5, "plot": 4.5,
-    "cli": 5, "plot_cli": 5,
+    "cli": 5, "plot_cli": 5, "state_report": 5,
 }
 #: no module of the package may be longer than this (lines)
 MAX_MODULE_LINES = 600

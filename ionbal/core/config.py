@@ -38,6 +38,7 @@ __all__ = [
     "set_num_threads",
     "get_num_threads",
     "max_num_threads",
+    "needs_compiling",
 ]
 
 
@@ -129,3 +130,22 @@ else:
         if func is None:
             return numba.jit(**options)
         return numba.jit(**options)(func)
+
+
+def needs_compiling(*kernels) -> bool:
+    """Whether calling these kernels will compile them: not yet compiled in this process and no
+    cache index of theirs on disk (a guess for the "compiling kernels" note; never raises).
+    """
+    if DISABLE_JIT:
+        return False
+    for k in kernels:
+        try:
+            if k.signatures:
+                continue
+            cache = getattr(k, "_cache", None)
+            index = getattr(getattr(cache, "_cache_file", None), "_index_path", None)
+            if not CACHE or index is None or not os.path.exists(index):
+                return True
+        except Exception:  # noqa: BLE001 - numba internals differ between versions; only a note depends on it
+            continue
+    return False

@@ -47,6 +47,7 @@ __all__ = ["Mixture", "MassFractions", "SOLAR_MIXTURES", "ALPHA_ELEMENTS", "ABUN
 
 #: Keys accepted by :meth:`Mixture.solar`.
 SOLAR_MIXTURES: tuple[str, ...] = ("AG89", "GS98", "AGSS09", "AAG21", "LPG09")
+_SOLAR_BY_UPPER = {k.upper(): k for k in SOLAR_MIXTURES}
 #: Elements shifted by ``alpha`` in :meth:`Mixture.scaled`.
 ALPHA_ELEMENTS: tuple[str, ...] = ("O", "Ne", "Mg", "Si", "S", "Ar", "Ca", "Ti")
 #: Allowed range of A(X).
@@ -87,6 +88,24 @@ def _items(data: Any) -> list[tuple[Any, Any]]:
         ) from None
 
 
+
+def _element_key(key) -> int:
+    """Z of an abundance key, in any letter case (``"Fe"``, ``"fe"``, ``"FE"``).
+
+    A key of an abundance mapping is always an element, so the all-capitals spelling that
+    :func:`~ionbal.data.elements.atomic_number` refuses (``"CO"`` could be a molecule) is safe here.
+    """
+    try:
+        return atomic_number(key)
+    except ValueError as first:
+        if isinstance(key, str) and key.strip().isalpha():
+            try:
+                return atomic_number(key.strip().capitalize())
+            except ValueError:
+                pass
+        raise first from None
+
+
 class Mixture(Mapping):
     """An immutable chemical mixture.
 
@@ -117,7 +136,7 @@ class Mixture(Mapping):
     def __init__(self, abundances: Mapping[str | int, float], name: str = "custom") -> None:
         values: dict[int, float] = {}
         for key, value in _items(abundances):
-            z = atomic_number(key)
+            z = _element_key(key)
             if z in values:
                 raise ValueError(f"element {SYMBOLS[z - 1]} is given more than once")
             values[z] = _check_value(z, value)
@@ -136,6 +155,7 @@ class Mixture(Mapping):
     @classmethod
     def solar(cls, key: str = "AGSS09") -> "Mixture":
         """A solar abundance set: ``"AG89"``, ``"GS98"``, ``"AGSS09"`` (default), ``"AAG21"``, ``"LPG09"``."""
+        key = _SOLAR_BY_UPPER.get(str(key).strip().upper(), key) if isinstance(key, str) else key
         if key not in SOLAR_MIXTURES:
             raise ValueError(f"unknown solar mixture {key!r}; valid keys are {', '.join(SOLAR_MIXTURES)}")
         return _solar(key)
@@ -267,7 +287,7 @@ class Mixture(Mapping):
         """
         changes: dict[int, float | None] = {}
         for key, value in _items(abundances or {}) + list(kwargs.items()):
-            z = atomic_number(key)
+            z = _element_key(key)
             if z in changes:
                 raise ValueError(f"element {SYMBOLS[z - 1]} is given more than once")
             changes[z] = value

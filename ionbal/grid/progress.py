@@ -1,4 +1,9 @@
-"""A one-line progress bar on a terminal."""
+"""Progress of long runs: a one-line bar on a terminal, periodic plain lines elsewhere (batch logs).
+
+Hand-written rather than a progress library's: what it must do besides drawing (count resumed
+points as done but not into the rate, print whole lines at a fixed period to a log file, never
+raise on a closed stream) is most of the code, and it adds no dependency.
+"""
 
 from __future__ import annotations
 
@@ -20,22 +25,27 @@ def _fmt_duration(seconds: float) -> str:
 
 
 class Progress:
-    """A one-line progress bar on a terminal: done/total points, points/s, time left.
+    """Progress of a long run: done/total points, points/s, time left.
 
-    It draws only when ``enabled`` (default: the stream is a terminal), and at
-    most every ``interval`` seconds.  Points finished in an earlier run
-    (``skipped``) count as done but not into the rate.
+    On a terminal (or with ``enabled=True``) a one-line bar redrawn at most every
+    ``interval`` seconds.  On anything else (a log file, a pipe) with ``enabled=None``,
+    one plain line every ``line_interval`` seconds and a last one at the end, so batch
+    logs show that the run is alive.  ``enabled=False`` is silent.  Points finished
+    in an earlier run (``skipped``) count as done but not into the rate.
     """
 
     def __init__(self, total: int, *, stream=None, enabled: bool | None = None, interval: float = 0.2,
-                 label: str = "ionbal grid", width: int = 28):
+                 label: str = "ionbal grid", width: int = 28, line_interval: float = 10.0):
         self.stream = sys.stderr if stream is None else stream
+        self.lines = False
         if enabled is None:
             try:
                 enabled = bool(self.stream.isatty())
             except (AttributeError, ValueError):
                 enabled = False
+            self.lines = not enabled
         self.enabled = enabled
+        self.line_interval = line_interval
         self.total = max(0, int(total))
         self.done = 0
         self.skipped = 0
@@ -57,6 +67,26 @@ class Progress:
         if self.enabled and (now - self._last >= self.interval or self.done >= self.total):
             self._last = now
             self._draw(now)
+        elif self.lines and now - max(self._last, self._t0) >= self.line_interval:
+            self._last = now
+            self._write_line()
+
+    def plain_line(self) -> str:
+        """The progress as one log line (no bar, no carriage return)."""
+        frac = self.done / self.total if self.total else 1.0
+        rate = self.rate()
+        left = (self.total - self.done) / rate if rate == rate and rate > 0 else float("nan")
+        rate_s = f"{rate:,.0f} pts/s" if rate == rate else "-- pts/s"
+        return (f"{self.label}: {100 * frac:5.1f}% {self.done:,}/{self.total:,} pts, {rate_s}, "
+                f"elapsed {_fmt_duration(time.monotonic() - self._t0)}, left {_fmt_duration(left)}")
+
+    def _write_line(self) -> None:
+        try:
+            self.stream.write(self.plain_line() + "\n")
+            self.stream.flush()
+            self._drawn = True
+        except (OSError, ValueError):
+            self.lines = False
 
     def rate(self) -> float:
         dt = time.monotonic() - self._t0
@@ -82,6 +112,10 @@ class Progress:
             self.enabled = False
 
     def close(self) -> None:
+        if self.lines and self.done > self.skipped:
+            self._write_line()
+            self.lines = False
+            return
         if self.enabled and self._drawn:
             with contextlib.suppress(OSError, ValueError):
                 if self.done < self.total:

@@ -1,31 +1,47 @@
-"""The table of file formats, keyed by extension (column results; grid files are always HDF5)."""
+"""The tables of file formats, keyed by extension: column results and grid files."""
 
 from __future__ import annotations
 
 from pathlib import Path
 
-__all__ = ["FORMATS", "format_of"]
+__all__ = ["FORMATS", "GRID_EXTENSIONS", "format_of", "check_grid_output_name"]
 
 #: extension -> format of a column result
 FORMATS: dict[str, str] = {
-    ".ecsv": "ecsv",
+    ".ecsv": "ecsv",    # astropy's ECSV: units and metadata kept
+    ".csv": "csv",      # comma-separated, one header line of column names, cgs, no comments
+    ".txt": "text",     # fixed-width columns separated by blanks, '#' comment lines with units and provenance
+    ".dat": "text",
     ".h5": "hdf5",
     ".hdf5": "hdf5",
     ".nc": "hdf5",
     ".he5": "hdf5",
 }
-#: extensions people try that are refused with a hint (plain text loses the units)
-_REFUSED = (".txt", ".csv")
+#: extensions of grid files (always HDF5 in the netCDF-4 layout)
+GRID_EXTENSIONS: tuple[str, ...] = (".h5", ".hdf5", ".nc", ".he5")
+
+
+def _known() -> str:
+    return ", ".join(FORMATS)
 
 
 def format_of(path) -> str:
-    """The format (``"ecsv"`` or ``"hdf5"``) of an output path, from its extension."""
+    """The format (``"ecsv"``, ``"csv"``, ``"text"`` or ``"hdf5"``) of a column output, from its extension."""
     path = Path(path)
     ext = path.suffix.lower()
-    if ext in _REFUSED:
-        raise ValueError(f"output {path}: column results are written as ECSV (.ecsv) or HDF5 (.h5, .hdf5, "
-                         ".nc)")
     try:
         return FORMATS[ext]
     except KeyError:
-        raise ValueError(f"output {path}: unknown extension {ext or '(none)'}; use .ecsv or .h5") from None
+        raise ValueError(f"output {path}: unknown extension {ext or '(none)'}; column results are written as "
+                         f"{_known()} (ECSV, CSV, fixed-width text or HDF5)") from None
+
+
+def check_grid_output_name(path) -> Path:
+    """Refuse a grid output whose extension is not an HDF5 one (a grid is never written as text)."""
+    path = Path(path)
+    ext = path.suffix.lower()
+    if ext not in GRID_EXTENSIONS:
+        raise ValueError(f"output {path}: a grid file is HDF5 (netCDF-4 layout); give it one of the extensions "
+                         f"{', '.join(GRID_EXTENSIONS)} (got {ext or 'none'}). For tables of a few states or a "
+                         "model column, use ionbal column with .csv, .txt or .ecsv")
+    return path

@@ -70,59 +70,51 @@ def cell(name, ax: np.ndarray, q: np.ndarray, log: bool):
     return i, np.clip(w, 0.0, 1.0)
 
 def interp_field(g, field_key: str, field, q: dict, method: str) -> np.ndarray:
-    """Interpolate log(field) multilinearly (or cubically) at the query points; returns exp of it."""
+    """Interpolate log(field) multilinearly (or cubically) at the query points; returns exp of it.
+
+    Both methods are :class:`scipy.interpolate.RegularGridInterpolator` on the log of the field
+    over log T, log(state) and the (linear) composition axes; axes of one value are dropped.
+    For ``"linear"`` a point is refused when a grid point of its cell that did not converge
+    (NaN) would get a non-zero weight; unconverged points elsewhere do not matter.
+    """
+    from scipy.interpolate import RegularGridInterpolator
+
+    if method not in ("linear", "cubic"):
+        raise ValueError(f"method must be 'linear' or 'cubic', got {method!r}")
     shape = next(iter(q.values())).shape
     logs = {d: d in ("temperature", g.state_variable) for d in g.dims}
-    if method == "linear":
-        cells = [cell(d, g.axes[d], q[d], logs[d]) for d in g.dims]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            lf = g._cached(("log", field_key), lambda: np.log(np.asarray(field(), dtype=np.float64)))
-        n = cells[0][0].size
-        acc = np.zeros(n)
+    for d in g.dims:
+        cell(d, g.axes[d], q[d], logs[d])  # range checks and messages
+        if method == "cubic" and g.axes[d].size < 4:
+            raise ValueError(f"cubic interpolation needs at least 4 values on every axis; {d} has "
+                             f"{g.axes[d].size} (use method='linear')")
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lf = g._cached(("log", field_key), lambda: np.log(np.asarray(field(), dtype=np.float64)))
+    kept = [d for d in g.dims if g.axes[d].size > 1]
+    lf = lf[tuple(slice(None) if g.axes[d].size > 1 else 0 for d in g.dims)]
+    nan = np.isnan(lf)
+    if method == "cubic" and nan.any():
+        raise ValueError(f"cannot interpolate {field_key} cubically: the grid has points that did not "
+                         "converge (use method='linear')")
+    # log of an underflowed value (0) is -inf: floor it at the log of the smallest normal double
+    lf = np.where(nan, 0.0, np.maximum(lf, math.log(np.finfo(np.float64).tiny)))
+    n = int(np.prod(shape, dtype=np.int64))
+    if not kept:  # a grid of one point
+        acc = np.full(n, float(lf))
+        bad = np.full(n, bool(nan))
+    else:
+        pts = [np.log(g.axes[d]) if logs[d] else np.asarray(g.axes[d]) for d in kept]
+        xi = np.stack([np.log(np.clip(q[d].ravel(), g.axes[d][0], g.axes[d][-1])) if logs[d]
+                       else np.clip(q[d].ravel(), g.axes[d][0], g.axes[d][-1]) for d in kept], axis=-1)
+        acc = RegularGridInterpolator(pts, lf, method=method, bounds_error=False, fill_value=None)(xi)
         bad = np.zeros(n, dtype=bool)
-        d = len(g.dims)
-        for corner in range(2 ** d):
-            idx = []
-            wt = np.ones(n)
-            for j, (i, w) in enumerate(cells):
-                up = (corner >> j) & 1
-                if up and g.axes[g.dims[j]].size == 1:
-                    wt = wt * 0.0
-                    idx.append(i)
-                    continue
-                idx.append(i + up)
-                wt = wt * (w if up else (1.0 - w))
-            vals = lf[tuple(idx)]
-            use = wt > 0
-            bad |= use & np.isnan(vals)
-            with np.errstate(invalid="ignore"):
-                acc += np.where(use, wt * np.where(np.isnan(vals), 0.0, vals), 0.0)
-        if bad.any():
-            k = int(np.flatnonzero(bad)[0])
-            pt = ", ".join(f"{dd}={q[dd].ravel()[k]:.6g}" for dd in g.dims)
-            raise ValueError(f"cannot interpolate {field_key} at point {k} ({pt}): the surrounding grid "
-                             "points did not converge (status != 0)")
-        with np.errstate(under="ignore", over="ignore"):
-            return np.exp(acc).reshape(shape)
-    if method == "cubic":
-        from scipy.interpolate import RegularGridInterpolator
-
-        for d in g.dims:
-            cell(d, g.axes[d], q[d], logs[d])  # range checks and messages
-            if g.axes[d].size < 4:
-                raise ValueError(f"cubic interpolation needs at least 4 values on every axis; {d} has "
-                                 f"{g.axes[d].size} (use method='linear')")
-        with np.errstate(divide="ignore", invalid="ignore"):
-            lf = np.log(np.asarray(field(), dtype=np.float64))
-        if np.isnan(lf).any():
-            raise ValueError(f"cannot interpolate {field_key} cubically: the grid has points that did not "
-                             "converge (use method='linear')")
-        lf = np.maximum(lf, math.log(np.finfo(np.float64).tiny))
-        pts = [np.log(g.axes[d]) if logs[d] else g.axes[d] for d in g.dims]
-        qs = [np.log(np.clip(q[d].ravel(), g.axes[d][0], g.axes[d][-1])) if logs[d]
-              else np.clip(q[d].ravel(), g.axes[d][0], g.axes[d][-1]) for d in g.dims]
-        rgi = RegularGridInterpolator(pts, lf, method="cubic", bounds_error=False, fill_value=None)
-        with np.errstate(under="ignore", over="ignore"):
-            return np.exp(rgi(np.stack(qs, axis=-1))).reshape(shape)
-    raise ValueError(f"method must be 'linear' or 'cubic', got {method!r}")
-
+        if nan.any():  # weight of the unconverged corners at each point
+            bad = RegularGridInterpolator(pts, nan.astype(np.float64), method="linear", bounds_error=False,
+                                          fill_value=None)(xi) > 0
+    if bad.any():
+        k = int(np.flatnonzero(bad)[0])
+        pt = ", ".join(f"{dd}={q[dd].ravel()[k]:.6g}" for dd in g.dims)
+        raise ValueError(f"cannot interpolate {field_key} at point {k} ({pt}): the surrounding grid "
+                         "points did not converge (status != 0)")
+    with np.errstate(under="ignore", over="ignore"):
+        return np.exp(acc).reshape(shape)

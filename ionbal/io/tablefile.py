@@ -1,4 +1,5 @@
-"""Writing a table (a model-atmosphere column: one dimension) as a netCDF-4 style HDF5 file."""
+"""Writing tables: a model-atmosphere column (one dimension) as a netCDF-4 style HDF5 file, and any
+astropy table as ECSV, CSV or fixed-width text (:func:`write_text_table`)."""
 
 from __future__ import annotations
 
@@ -14,7 +15,7 @@ from .atomic import atomic_output
 from .netcdf import FILE_TYPE_COLUMN, FORMAT_VERSION, _coordinate, _h5py, _str_array, _variable
 from .provenance import data_sources
 
-__all__ = ["write_table_file"]
+__all__ = ["write_table_file", "write_text_table"]
 
 
 def write_table_file(path, columns: Mapping[str, tuple], *, species: Sequence[str] = (),
@@ -76,3 +77,40 @@ def write_table_file(path, columns: Mapping[str, tuple], *, species: Sequence[st
                 f.attrs[k] = v
             f.attrs["ionbal_complete"] = np.int8(1)
 
+
+
+def write_text_table(table, path, fmt: str, *, overwrite: bool = False, comments=()) -> None:
+    """Write an astropy table atomically as ``"ecsv"``, ``"csv"`` or ``"text"`` (fixed width).
+
+    ECSV keeps units and ``table.meta``; CSV is one header line of names and the rows, nothing
+    else (what spreadsheets and ``pandas.read_csv`` expect); text is a fixed-width table with the
+    columns separated by blanks (floats as ``%.15e``), after ``#`` lines: the ``comments`` and the
+    unit of every column that has one.
+    """
+    from astropy.table import Table
+
+    from ..quantities import unit_of_astropy
+
+    check_output_path(path, overwrite=overwrite)
+    if fmt == "ecsv":
+        with atomic_output(Path(path), overwrite=overwrite) as tmp:
+            table.write(tmp, format="ascii.ecsv", overwrite=True)
+        return
+    t = Table(table, copy=False)
+    t.meta.clear()
+    if fmt == "csv":
+        with atomic_output(Path(path), overwrite=overwrite) as tmp:
+            t.write(tmp, format="ascii.csv", overwrite=True)
+        return
+    if fmt != "text":
+        raise ValueError(f"unknown table format {fmt!r}; use 'ecsv', 'csv' or 'text'")
+    for n in t.colnames:
+        if t[n].dtype.kind in "US" and any(" " in str(v) or not str(v) for v in t[n]):
+            raise ValueError(f"column {n} has values with blanks or empty values; a fixed-width text table "
+                             "cannot hold them, write .csv or .ecsv")
+    units = [f"{n} [{unit_of_astropy(t[n].unit)}]" for n in t.colnames
+             if t[n].unit is not None and str(t[n].unit) != ""]
+    t.meta["comments"] = list(comments) + (["units (cgs): " + ", ".join(units)] if units else [])
+    formats = {n: "%.15e" for n in t.colnames if t[n].dtype.kind == "f"}
+    with atomic_output(Path(path), overwrite=overwrite) as tmp:
+        t.write(tmp, format="ascii.fixed_width", delimiter=" ", bookend=False, formats=formats, overwrite=True)

@@ -1,0 +1,106 @@
+"""What ``ionbal state`` shows: the summary text and the JSON record of a 0-D result (no I/O)."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .quantities import POINT_OUTPUTS, QUANTITIES, unit_text
+
+__all__ = ["format_state", "state_record"]
+
+
+def _fmt_fraction(f: float) -> str:
+    return f"{f:.5f}" if f >= 1e-3 else f"{f:.2e}"
+
+
+def _quantity_lines(value) -> list[str]:
+    """One line per per-point output of the registry: symbol, value, unit."""
+    lines = []
+    for name in POINT_OUTPUTS:
+        q = QUANTITIES[name]
+        if q.unit in ("", "1"):
+            lines.append(f"  {q.symbol or name:<16} {value(name):.6f}")
+        else:
+            lines.append(f"  {q.symbol or name:<16} {value(name):.6e} {unit_text(q.unit)}")
+    return lines
+
+
+def _validity_lines(result) -> list[str]:
+    """The validity flags of a 0-D result: 'none raised', or a caution line per raised flag."""
+    from .validity import PHYSICS_FLAGS, VALIDITY_FLAGS
+
+    v = result.validity
+    if bool(np.asarray(v.unsolved)):
+        return ["  validity         not assessed: the state was not solved"]
+    raised = [name for name in PHYSICS_FLAGS if bool(np.asarray(getattr(v, name)))]
+    if not raised:
+        return ["  validity         no flag raised (degeneracy, coupling, Debye lowering and pressure ionization "
+                "small; non-LTE is not assessed)"]
+    lines = [f"  validity         CAUTION: {len(raised)} flag(s) raised; the ideal-gas Saha balance is "
+             "off by roughly ten per cent or more here"]
+    for name in raised:
+        param, limit, text = VALIDITY_FLAGS[name]
+        value = float(np.asarray(getattr(v, param)))
+        lines.append(f"    {name:<20} {param} = {value:.3g} > {limit:g}: {text.split(':')[0]}")
+    return lines
+
+
+def state_record(result, *, elements=None) -> dict:
+    """Everything ``ionbal state`` shows, as a JSON-ready dict (values in cgs, units named)."""
+    import ionbal
+    from .validity import FLAG_NAMES, PHYSICS_FLAGS, VALIDITY_FLAGS
+
+    r = result
+    v = r.validity
+    val = lambda name: float(np.asarray(r.quantity(name).value))  # noqa: E731
+    rec = {
+        "ionbal_version": ionbal.__version__,
+        "mixture": r.mixture.name,
+        "state_input": r.state_variable,
+        "temperature": val("temperature"),
+        **{name: val(name) for name in POINT_OUTPUTS},
+        "units": {name: QUANTITIES[name].unit for name in ("temperature",) + POINT_OUTPUTS},
+        "status": int(np.asarray(r.status)),
+        "message": str(np.asarray(r.message)),
+        "iterations": int(np.asarray(r.iterations)),
+        "validity": {
+            "trustworthy": bool(np.asarray(v.trustworthy)),
+            "flags": {name: bool(np.asarray(getattr(v, name))) for name in FLAG_NAMES},
+            "parameters": {VALIDITY_FLAGS[n][0]: float(np.asarray(getattr(v, VALIDITY_FLAGS[n][0])))
+                           for n in PHYSICS_FLAGS},
+            "limits": {VALIDITY_FLAGS[n][0]: VALIDITY_FLAGS[n][1] for n in PHYSICS_FLAGS},
+        },
+        "fractions": {},
+    }
+    for el in (elements or r.mixture.elements):
+        names = r.stages(el)
+        fr = np.asarray(r.fractions(el)).reshape(len(names))
+        rec["fractions"].update({n: float(x) for n, x in zip(names, fr)})
+    return rec
+
+
+def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
+    """A readable summary of a 0-D :class:`~ionbal.IonizationResult`."""
+    import ionbal
+
+    r = result
+    f = lambda name: float(np.asarray(getattr(r, name)))  # noqa: E731
+    mix = r.mixture
+    lines = [
+        f"ionbal {ionbal.__version__}: LTE ionization balance (ideal gas, atoms and ions, no molecules)",
+        f"  mixture          {mix.name} ({len(mix.elements)} elements)",
+        f"  temperature      {f('temperature'):.6g} K",
+        f"  given            {r.state_variable.replace('_', ' ')}",
+        *_quantity_lines(f),
+        f"  status           {str(np.asarray(r.message))} ({int(np.asarray(r.iterations))} iterations)",
+        *_validity_lines(r),
+        "",
+        f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g})",
+    ]
+    for el in (elements or mix.elements):
+        names = r.stages(el)
+        fr = np.asarray(r.fractions(el)).reshape(len(names))
+        dom = names[int(np.argmax(fr))]
+        shown = [f"{n} {_fmt_fraction(x)}" for n, x in zip(names, fr) if x >= min_fraction]
+        lines.append(f"  {el:<8} {dom:<10} " + "  ".join(shown))
+    return "\n".join(lines)
