@@ -52,7 +52,7 @@ import numpy as np
 
 from .core import status as st
 from .core.constants import E_CHARGE, K_B
-from .core.occupation import dlnu_many
+from .core.occupation import dlnu_many, neutral_density_many
 from .core.solver import (
     MAX_ITER,
     MODE_ELECTRON_PRESSURE,
@@ -60,7 +60,6 @@ from .core.solver import (
     MODE_NUCLEI_DENSITY,
     TOL,
     ion_moments_many_dlnu,
-    log_fractions_many_dlnu,
     solve_many_dlnu,
 )
 from .data.dissolution import dissolution_arrays
@@ -110,21 +109,20 @@ def _stage_set(packed, diss, occupation, coulomb):
     return dl_stage, occ_cols, 0.5 * q * (q + 1.0)
 
 
-def _corrections(T, x, lnn, packed, diss, sel, occ_cols, coul_factor, occupation, coulomb, dl_stage, dl_cur):
+def _neutral(T, x, lnn, packed, sel, dl_stage, dl_cur):
+    out = np.empty(T.size)
+    neutral_density_many(T, x, lnn, sel, packed.arrays, dl_stage, dl_cur, out)
+    return out
+
+
+def _corrections(T, x, lnn, ln_neutral, packed, diss, occ_cols, coul_factor, occupation, coulomb, dl_stage,
+                 dl_cur):
     """The corrections (n, k) implied by the solution ``x, lnn`` (and the current ones for the fractions)."""
     mix = packed.arrays
     n = T.size
     out = np.zeros((n, dl_stage.size))
     p_corr = np.zeros(n)
     if occupation and diss.stage.size:
-        lf = np.full((n, packed.n_stages), -np.inf)
-        log_fractions_many_dlnu(T, x, sel, mix, dl_stage, dl_cur, lf)
-        neutral = np.zeros(n)
-        for e in sel:
-            f = packed.elem_first[e] - packed.elem_q0[e]  # the neutral stage
-            neutral += packed.elem_w[e] * np.exp(lf[:, f])
-        with np.errstate(divide="ignore"):
-            ln_neutral = lnn + np.log(neutral)
         occ = np.empty((n, diss.stage.size))
         dlnu_many(T, x, ln_neutral, diss.stage, diss.start, diss.nstar, diss.lng, diss.energy, diss.z, mix, occ)
         out[:, occ_cols] += occ
@@ -137,7 +135,7 @@ def _corrections(T, x, lnn, packed, diss, sel, occ_cols, coul_factor, occupation
 
 
 def solve_dense(mode, T, value, packed, *, occupation=True, coulomb=False, tol=TOL, max_iter=MAX_ITER,
-                dl_tol=1e-10, max_outer=MAX_OUTER, x_guess=None):
+                dl_tol=1e-8, max_outer=MAX_OUTER, x_guess=None):
     """Solve the ionization balance with dissolved levels (and, optionally, the Debye-Hueckel correction).
 
     Parameters
@@ -199,13 +197,30 @@ def _solve_block(mode, T, value, xg, packed, diss, sel, occ_cols, coul_factor, o
     iters = it.copy()
     outer = np.ones(n, np.int64)
     active = np.nonzero(code == st.OK)[0] if k else np.zeros(0, np.int64)
+    # the occupation corrections depend on the point only through (x, ln n_neutral): where neither moved
+    # since the corrections were last evaluated, they are converged without evaluating them again
+    seen_x = np.full(n, np.nan)
+    seen_neu = np.full(n, np.nan)
     for rnd in range(1, max_outer + 1):
         if active.size == 0:
             break
         Ta = T[active]
-        new, pc = _corrections(Ta, x[active], lnn[active], packed, diss, sel, occ_cols, coul_factor, occupation,
-                               coulomb, dl_stage, np.ascontiguousarray(dl[active]))
-        change = np.max(np.abs(new - dl[active]), axis=1) if k else np.zeros(active.size)
+        dla = np.ascontiguousarray(dl[active])
+        neu = _neutral(Ta, x[active], lnn[active], packed, sel, dl_stage, dla)
+        if not coulomb and rnd - 1 < DAMP_AFTER:  # the last update was undamped: dl = f(seen state)
+            # d ln U moves by at most ~3 |d ln U| times the relative change of n_e or n_neutral (the
+            # microfield term goes as n_e^-2 at most, with the correlation factor as n_e^{1/6}; the
+            # excluded-volume term as n_neutral): below dl_tol / 4 nothing needs evaluating
+            shift = np.maximum(np.abs(x[active] - seen_x[active]), np.abs(neu - seen_neu[active]))
+            same = 3.0 * np.max(np.abs(dla), axis=1, initial=0.0) * np.expm1(shift) < 0.25 * dl_tol
+            active, Ta, dla, neu = active[~same], Ta[~same], dla[~same], neu[~same]
+            if active.size == 0:
+                break
+        seen_x[active] = x[active]
+        seen_neu[active] = neu
+        new, pc = _corrections(Ta, x[active], lnn[active], neu, packed, diss, occ_cols, coul_factor, occupation,
+                               coulomb, dl_stage, dla)
+        change = np.max(np.abs(new - dla), axis=1) if k else np.zeros(active.size)
         if coulomb and mode == MODE_GAS_PRESSURE:
             change = np.maximum(change, np.abs(pc - p_corr[active]) / value[active])
         moving = change > dl_tol

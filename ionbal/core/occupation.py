@@ -51,8 +51,8 @@ import numpy as np
 
 from .config import jit, pjit, prange
 from .constants import A_BOHR
-from .saha import stage_lnu, table_position
 from .constants import K_B_EV
+from .saha import element_log_fractions, element_log_weights, saha_base, stage_lnu, table_position
 
 #: groups with 1 - w below this end the sum (w only grows towards low n*)
 W_STOP = 1e-15
@@ -90,15 +90,42 @@ def occupation(nstar, z, ne, n_neutral, T):
 
 
 @jit
-def stage_dlnu(j, T, beta, ne, n_neutral, lnu_tab, g_start, g_nstar, g_lng, g_energy, st_z):
+def microfield_constants(ne, T):
+    """Per-point constants of :func:`w_charged`: ``(c_beta, c_num, c_den)``.
+
+    ``beta = c_beta K_n z^3 / n*^4``, ``f = c_num beta^3 / (1 + c_den beta^{3/2})``.
+    """
+    a = 0.09 * ne ** (1.0 / 6.0) / math.sqrt(T)
+    X = (1.0 + a) ** 3.15
+    return 8.3e14 * ne ** (-2.0 / 3.0), 0.1402 * (X + 4.0 * a * a * a), 0.1285 * X * a * math.sqrt(a)
+
+
+@jit
+def one_minus_w(nstar, z, c_beta, c_num, c_den, v_neutral):
+    """1 - w of a level from the per-point constants (``v_neutral = (4 pi / 3) N_0``)."""
+    if nstar <= 3.0:
+        kn = 1.0
+    else:
+        kn = 16.0 / 3.0 * nstar / ((nstar + 1.0) * (nstar + 1.0))
+    n2 = nstar * nstar
+    beta = c_beta * kn * z * z * z / (n2 * n2)
+    f = c_num * beta * beta * beta / (1.0 + c_den * beta * math.sqrt(beta))
+    r = n2 * A_BOHR / z + A_BOHR
+    v = v_neutral * r * r * r
+    # w = w_neutral * w_charged; 1 - w without cancellation
+    return 1.0 / (1.0 + f) - math.expm1(-v) * f / (1.0 + f)
+
+
+@jit
+def stage_dlnu(j, beta_t, c_beta, c_num, c_den, v_neutral, lnu_tab, g_start, g_nstar, g_lng, g_energy, st_z):
     """d ln U of treated stage ``j`` (groups ``g_start[j]:g_start[j+1]``, descending n*)."""
     z = st_z[j]
     s_diss = 0.0
     for g in range(g_start[j], g_start[j + 1]):
-        w = occupation(g_nstar[g], z, ne, n_neutral, T)
-        if 1.0 - w < W_STOP:
+        omw = one_minus_w(g_nstar[g], z, c_beta, c_num, c_den, v_neutral)
+        if omw < W_STOP:
             break
-        s_diss += (1.0 - w) * math.exp(g_lng[g] - g_energy[g] * beta - lnu_tab)
+        s_diss += omw * math.exp(g_lng[g] - g_energy[g] * beta_t - lnu_tab)
     if s_diss == 0.0:
         return 0.0
     if s_diss < 0.5:
@@ -107,8 +134,8 @@ def stage_dlnu(j, T, beta, ne, n_neutral, lnu_tab, g_start, g_nstar, g_lng, g_en
     num = 0.0
     den = 0.0
     for g in range(g_start[j], g_start[j + 1]):
-        b = math.exp(g_lng[g] - g_energy[g] * beta - lnu_tab)
-        num += occupation(g_nstar[g], z, ne, n_neutral, T) * b
+        b = math.exp(g_lng[g] - g_energy[g] * beta_t - lnu_tab)
+        num += (1.0 - one_minus_w(g_nstar[g], z, c_beta, c_num, c_den, v_neutral)) * b
         den += b
     if not (num > 0.0):
         return -745.0
@@ -134,8 +161,45 @@ def dlnu_many(T, ln_ne, ln_neutral, st_stage, g_start, g_nstar, g_lng, g_energy,
         ne = math.exp(ln_ne[p])
         nn = math.exp(ln_neutral[p]) if abs(ln_neutral[p]) < np.inf else 0.0
         i, w = table_position(Tp, mix.lt0, mix.dlt, n_t)
-        beta = 1.0 / (K_B_EV * Tp)
+        beta_t = 1.0 / (K_B_EV * Tp)
+        c_beta, c_num, c_den = microfield_constants(ne, Tp)
+        v_neutral = _FOUR_PI_3 * nn
         for j in range(k):
             s = st_stage[j]
             lnu_tab = stage_lnu(s, i, w, mix.stage_row, mix.stage_lnu_const, mix.lnU)
-            out[p, j] = stage_dlnu(j, Tp, beta, ne, nn, lnu_tab, g_start, g_nstar, g_lng, g_energy, st_z)
+            out[p, j] = stage_dlnu(j, beta_t, c_beta, c_num, c_den, v_neutral, lnu_tab, g_start, g_nstar, g_lng,
+                                   g_energy, st_z)
+
+
+@pjit
+def neutral_density_many(T, x, ln_nuc, sel_elem, mix, dl_stage, dl_val, out):
+    """ln of the density of neutral atoms of the elements ``sel_elem`` (H I + He I), with the ln U corrections.
+
+    ``out[p]`` = ln sum_e w_e n_nuc f(neutral stage of e); the corrections of the
+    stages of these elements are applied as in :func:`ionbal.core.solver.apply_dlnu`.
+    """
+    n = T.size
+    n_stage = mix.stage_chi.size
+    n_t = mix.lnU.shape[1]
+    for p in prange(n):
+        if not (T[p] > 0.0 and T[p] < np.inf and abs(x[p]) < np.inf and abs(ln_nuc[p]) < np.inf):
+            out[p] = -np.inf
+            continue
+        C = np.empty(n_stage)
+        row = np.empty(n_stage)
+        i, w = table_position(T[p], mix.lt0, mix.dlt, n_t)
+        base, beta = saha_base(T[p])
+        tot = 0.0
+        for jj in range(sel_elem.size):
+            e = sel_elem[jj]
+            f = mix.elem_first[e]
+            ne_ = mix.elem_n[e]
+            element_log_weights(e, base, beta, i, w, mix.elem_first, mix.elem_n, mix.stage_chi, mix.stage_row,
+                                mix.stage_lnu_const, mix.lnU, C)
+            for j in range(dl_stage.size):
+                s = dl_stage[j]
+                if s >= f and s < f + ne_:
+                    C[s] += dl_val[p, j]
+            element_log_fractions(C, f, ne_, x[p], row)
+            tot += mix.elem_w[e] * math.exp(row[f - mix.elem_q0[e]])
+        out[p] = ln_nuc[p] + math.log(tot) if tot > 0.0 else -np.inf
