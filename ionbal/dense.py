@@ -68,7 +68,9 @@ __all__ = ["DenseSolution", "solve_dense", "debye_parameters"]
 
 #: points per block of the outer iteration (bounds the memory of the correction arrays)
 CHUNK = 4096
-#: outer iterations allowed; damping (1/2) from :data:`DAMP_AFTER` on
+#: outer iterations allowed; the update is damped (1/2) from :data:`DAMP_AFTER` on.  In gas at
+#: P > 1e11 dyn cm^-2 (far above the default grid) the excluded-volume term can keep the iteration
+#: from settling (more ionization, fewer neutral perturbers, less dissolution): status MAX_ITERATIONS
 MAX_OUTER = 60
 DAMP_AFTER = 12
 
@@ -93,7 +95,8 @@ def debye_parameters(T, ln_ne, ln_nuc, q2_per_nucleus):
     charge_density = np.exp(ln_ne) + np.exp(ln_nuc) * q2_per_nucleus
     inv_lambda = np.sqrt(4.0 * math.pi * E_CHARGE**2 * charge_density / kT)
     gamma = E_CHARGE**2 * inv_lambda / kT
-    return gamma, -kT * inv_lambda**3 / (24.0 * math.pi)
+    with np.errstate(over="ignore", invalid="ignore"):
+        return gamma, -kT * inv_lambda**3 / (24.0 * math.pi)
 
 
 def _stage_set(packed, diss, occupation, coulomb):
@@ -235,6 +238,14 @@ def _solve_block(mode, T, value, xg, packed, diss, sel, occ_cols, coul_factor, o
         va = value[active]
         if coulomb and mode == MODE_GAS_PRESSURE:
             va = va - p_corr[active]  # the ideal-gas pressure: P + kT / (24 pi lambda_D^3)
+            # Debye-Hueckel beyond weak coupling: the correction no longer stays finite
+            runaway = ~(np.isfinite(va) & (va < 1e3 * value[active]))
+            if runaway.any():
+                code[active[runaway]] = st.NO_SOLUTION
+                keep = ~runaway
+                active, va = active[keep], va[keep]
+                if active.size == 0:
+                    break
         xa = np.empty(active.size)
         la = np.empty(active.size)
         ia = np.empty(active.size, np.int64)
