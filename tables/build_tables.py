@@ -21,6 +21,10 @@ gs98_l09_ag89}.csv``.  The tables written are
     How each column of the previous table was obtained.
 ``abundances.ecsv``
     Solar abundance sets AG89, GS98, AGSS09, AAG21 and LPG09.
+``level_groups.ecsv``
+    The levels behind every level-sum column of ``partition_functions.ecsv``
+    grouped by effective principal quantum number, for the occupation
+    probabilities of dense gas (:mod:`ionbal.data.dissolution`).
 
 The partition functions are computed by ionbal's own level-sum code
 (:mod:`ionbal.data.levels`); see its docstring for the treatment of every
@@ -383,6 +387,67 @@ def build_partition_functions(src: Path, out: Path, ie: dict[tuple[int, int], di
     s.meta["see"] = "partition_functions.ecsv"
     s.meta["generated_by"] = "tables/build_tables.py"
     _write(s, out / "partition_function_sources.ecsv")
+    return info
+
+
+# --------------------------------------------------------------------------- level groups (dense gas)
+#: Rydberg energy for an infinite nuclear mass [eV] (CODATA 2018)
+RYDBERG_EV = 13.605693122994
+
+
+def build_level_groups(src: Path, out: Path, info: list[dict]) -> None:
+    """Group the summed levels of every species by effective principal quantum number.
+
+    For a level of energy E below the limit chi of a stage of charge q, the
+    effective quantum number is n* = (q + 1) sqrt(R / (chi - E)) (the Rydberg
+    formula with the charge of the core seen by the excited electron).  Levels
+    are grouped by the nearest integer of n* (at least 1); each group keeps its
+    summed weight g, its g-weighted mean n* and its g-weighted mean energy.  H I
+    uses the analytic levels n <= 17 of its partition function, one group per n.
+    """
+    from astropy.table import Table
+
+    rows = []
+    for rec in info:
+        z, q, method = rec["Z"], rec["charge"], rec["method"]
+        if method == "hydrogenic":
+            n = np.arange(1, levels.H_N_MAX + 1, dtype=float)
+            energy = rec["limit"] * (1.0 - 1.0 / n**2)
+            for k in range(n.size):
+                rows.append((z, q, rec["species"], n[k], 2.0 * n[k] ** 2, round(float(energy[k]), 7)))
+            continue
+        if method != "levels":
+            continue
+        el = SYMBOLS[z - 1]
+        path = src / "levels" / f"{el}_{to_roman(q + 1)}_nist.atom"
+        below = levels.read_level_file(path).below(rec["limit"] * levels.EV_TO_CM)
+        e_ev = below.energy / levels.EV_TO_CM
+        g = below.g
+        nstar = (q + 1) * np.sqrt(RYDBERG_EV / (rec["limit"] - e_ev))
+        key = np.maximum(1, np.rint(nstar)).astype(int)
+        for k in np.unique(key):
+            m = key == k
+            gs = float(g[m].sum())
+            rows.append((z, q, rec["species"], round(float((g[m] * nstar[m]).sum() / gs), 5), gs,
+                         round(float((g[m] * e_ev[m]).sum() / gs), 7)))
+    t = Table(rows=rows, names=("Z", "charge", "species", "n_eff", "g", "energy"))
+    t["n_eff"].description = "g-weighted mean effective principal quantum number n* = (q+1) sqrt(R/(chi-E))"
+    t["g"].description = "summed statistical weight of the group's levels"
+    t["energy"].unit = "eV"
+    t["energy"].description = "g-weighted mean excitation energy of the group's levels"
+    t.meta["title"] = "ionbal level groups by effective quantum number (occupation probabilities)"
+    t.meta["source"] = [
+        "The levels summed for partition_functions.ecsv (NIST ASD level lists as compiled for Barklem & "
+        "Collet 2016, A&A 588, A96; NIST 2024 ionization limits); H I analytic, n <= 17",
+    ]
+    t.meta["processing"] = [
+        f"n* = (q + 1) sqrt(R / (chi - E)), R = {RYDBERG_EV} eV (CODATA 2018); levels grouped by the "
+        "nearest integer of n* (at least 1); per group the summed g, the g-weighted mean n* and energy.",
+        "Only species whose column of partition_functions.ecsv is a level sum (method levels or hydrogenic).",
+    ]
+    t.meta["see"] = "partition_functions.ecsv"
+    t.meta["generated_by"] = "tables/build_tables.py"
+    _write(t, out / "level_groups.ecsv")
 
 
 # --------------------------------------------------------------------------- abundances
@@ -492,7 +557,8 @@ def main(argv: list[str] | None = None) -> int:
     args.out.mkdir(parents=True, exist_ok=True)
     build_atomic_masses(args.out)
     ie = build_ionization_energies(src, args.out)
-    build_partition_functions(src, args.out, ie)
+    info = build_partition_functions(src, args.out, ie)
+    build_level_groups(src, args.out, info)
     build_abundances(src, args.out)
     return 0
 

@@ -116,6 +116,18 @@ def solve_point(mode, T, value, x_guess, C, kpk, mix, tol, max_iter):
         return nan, nan, 0, st.TEMPERATURE_OUT_OF_RANGE
 
     log_weights(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)
+    return solve_from_weights(mode, T, value, x_guess, C, kpk, mix, tol, max_iter)
+
+
+@jit
+def solve_from_weights(mode, T, value, x_guess, C, kpk, mix, tol, max_iter):
+    """The solve of :func:`solve_point` once the cumulative log Saha weights ``C`` of the point are known."""
+    elem_w = mix.elem_w
+    elem_first = mix.elem_first
+    elem_n = mix.elem_n
+    elem_q0 = mix.elem_q0
+    q_max = mix.q_max
+    nan = np.nan
     kT = K_B * T
     for e in range(kpk.size):
         kpk[e] = -1  # first evaluation scans every stage: no state carried between points
@@ -374,6 +386,131 @@ def ion_moments_many(T, x, mix, out):
                 a += elem_w[e] * q2
                 b += elem_w[e] * q53
                 d += elem_w[e] * pos
+            out[p, 0] = a
+            out[p, 1] = b
+            out[p, 2] = d
+
+
+# --------------------------------------------------------------------------- ln U corrections (dense gas)
+# The hook for per-point additive corrections of ln U (occupation probabilities, Coulomb lowering;
+# see ionbal.dense).  ``dl_stage`` int64[k] lists flat stage indices, ``dl_val`` float64[n_points, k]
+# the corrections of ln U of those stages at each point (k may be 0).  A correction d of ln U_s adds d
+# to C[s] (C[s] - C[first] = ln(U_s / U_first) + ...), i.e. it changes the Saha ratios U_{s+1}/U_s and
+# U_s/U_{s-1}; each element's weights are then shifted back to C[first] = 0.
+
+
+@jit
+def apply_dlnu(C, p, dl_stage, dl_val, elem_first):
+    """Add the corrections of point ``p`` to the cumulative log weights ``C`` (renormalised per element)."""
+    k = dl_stage.size
+    if k == 0:
+        return
+    for j in range(k):
+        C[dl_stage[j]] += dl_val[p, j]
+    n_el = elem_first.size
+    for e in range(n_el):
+        f = elem_first[e]
+        c0 = C[f]
+        if c0 != 0.0:
+            stop = elem_first[e + 1] if e + 1 < n_el else C.size
+            for s in range(f, stop):
+                C[s] -= c0
+
+
+@jit
+def solve_few_dlnu(mode, T, value, x_guess, mix, dl_stage, dl_val, tol, max_iter, out_x, out_ln_nuc,
+                   out_iter, out_status):
+    """:func:`solve_few` with the ln U corrections ``dl_val`` (rows = the points of this call)."""
+    C = np.empty(mix.stage_chi.size)
+    kpk = np.empty(mix.elem_w.size, dtype=np.int64)
+    n_t = mix.lnU.shape[1]
+    for i in range(T.size):
+        Ti = T[i]
+        vi = value[i]
+        if not (Ti > 0.0 and Ti < np.inf and vi > 0.0 and vi < np.inf):
+            out_x[i], out_ln_nuc[i], out_iter[i], out_status[i] = np.nan, np.nan, 0, st.INVALID_INPUT
+            continue
+        lgT = math.log10(Ti)
+        if lgT < mix.lt0 - 1e-12 or lgT > mix.lt0 + (n_t - 1) * mix.dlt + 1e-12:
+            out_x[i], out_ln_nuc[i], out_iter[i], out_status[i] = np.nan, np.nan, 0, st.TEMPERATURE_OUT_OF_RANGE
+            continue
+        log_weights(Ti, mix.elem_first, mix.elem_n, mix.stage_chi, mix.stage_row, mix.stage_lnu_const,
+                    mix.lnU, mix.lt0, mix.dlt, C)
+        apply_dlnu(C, i, dl_stage, dl_val, mix.elem_first)
+        x, lnn, it, code = solve_from_weights(mode, Ti, vi, x_guess[i], C, kpk, mix, tol, max_iter)
+        out_x[i] = x
+        out_ln_nuc[i] = lnn
+        out_iter[i] = it
+        out_status[i] = code
+
+
+@pjit
+def solve_many_dlnu(mode, T, value, x_guess, mix, dl_stage, dl_val, tol, max_iter, out_x, out_ln_nuc,
+                    out_iter, out_status):
+    """:func:`solve_many` with per-point additive corrections ``dl_val`` of ln U of the stages ``dl_stage``."""
+    n = T.size
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        solve_few_dlnu(mode, T[start:stop], value[start:stop], x_guess[start:stop], mix, dl_stage,
+                       dl_val[start:stop], tol, max_iter, out_x[start:stop], out_ln_nuc[start:stop],
+                       out_iter[start:stop], out_status[start:stop])
+
+
+@pjit
+def log_fractions_many_dlnu(T, x, sel_elem, mix, dl_stage, dl_val, out):
+    """:func:`log_fractions_many` with the ln U corrections (``out`` (n_points, n_stages), selected columns)."""
+    n = T.size
+    n_stage = mix.stage_chi.size
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        C = np.empty(n_stage)
+        row = np.empty(n_stage)
+        for p in range(start, stop):
+            ok = T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf
+            if ok:
+                log_weights(T[p], mix.elem_first, mix.elem_n, mix.stage_chi, mix.stage_row, mix.stage_lnu_const,
+                            mix.lnU, mix.lt0, mix.dlt, C)
+                apply_dlnu(C, p, dl_stage, dl_val, mix.elem_first)
+            for j in range(sel_elem.size):
+                e = sel_elem[j]
+                f = mix.elem_first[e]
+                if ok:
+                    element_log_fractions(C, f, mix.elem_n[e], x[p], row)
+                    for k in range(mix.elem_n[e]):
+                        out[p, f + k] = row[f + k]
+                else:
+                    for k in range(mix.elem_n[e]):
+                        out[p, f + k] = np.nan
+
+
+@pjit
+def ion_moments_many_dlnu(T, x, mix, dl_stage, dl_val, out):
+    """:func:`ion_moments_many` with the ln U corrections."""
+    n = T.size
+    n_stage = mix.stage_chi.size
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        C = np.empty(n_stage)
+        for p in range(start, stop):
+            if not (T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf):
+                out[p, 0] = np.nan
+                out[p, 1] = np.nan
+                out[p, 2] = np.nan
+                continue
+            log_weights(T[p], mix.elem_first, mix.elem_n, mix.stage_chi, mix.stage_row, mix.stage_lnu_const,
+                        mix.lnU, mix.lt0, mix.dlt, C)
+            apply_dlnu(C, p, dl_stage, dl_val, mix.elem_first)
+            a = 0.0
+            b = 0.0
+            d = 0.0
+            for e in range(mix.elem_w.size):
+                q2, q53, pos = element_charge_powers(C, mix.elem_first[e], mix.elem_n[e], mix.elem_q0[e], x[p])
+                a += mix.elem_w[e] * q2
+                b += mix.elem_w[e] * q53
+                d += mix.elem_w[e] * pos
             out[p, 0] = a
             out[p, 1] = b
             out[p, 2] = d
