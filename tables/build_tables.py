@@ -595,10 +595,10 @@ def janaf_dissociation(folder: Path, formula: str) -> tuple[np.ndarray, np.ndarr
             if not charged_done:
                 name, charged_done = sym + ("+" if q > 0 else "-"), True
             atom = read_janaf(idx[name])
-            if not np.all(np.isin(T, atom["T"])):
-                raise ValueError(f"JANAF temperatures of {name} do not cover those of {formula}")
+            keep = np.isin(T, atom["T"])  # temperatures tabulated for both
+            T, logk = T[keep], logk[keep]
             logk += np.interp(T, atom["T"], atom["logKf"])
-            d0 += atom["dfH"][atom["T"] == 0][0]
+            d0 += atom["dfH"][0] if atom["T"][0] == 0 else np.nan  # (JANAF H+ has no 0 K row)
     return T, logk, d0 / _EV_KJMOL
 
 
