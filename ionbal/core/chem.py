@@ -131,6 +131,14 @@ def _atomic_sums(C, f, n, q0, x):
         t = C[f + k] - cn - (k - kn) * x
         if t > m:
             m = t
+    # terms far below the peak are dropped -- but not the charged stages next to the neutral atom,
+    # which carry the element's charge however rare they are (cool gas)
+    low = m
+    if kn + 1 < n:
+        low = min(low, C[f + kn + 1] - cn - x)
+    if kn >= 1:
+        low = min(low, C[f + kn - 1] - cn + x)
+    low = low - CUT - m
     s0 = 0.0
     sp = 0.0
     sp2 = 0.0
@@ -138,7 +146,7 @@ def _atomic_sums(C, f, n, q0, x):
     sn2 = 0.0
     for k in range(n):
         t = C[f + k] - cn - (k - kn) * x - m
-        if t < -CUT:
+        if t < low:
             continue
         p = math.exp(t)
         q = k - kn

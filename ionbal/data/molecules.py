@@ -74,13 +74,14 @@ def _parse_formula(text: str) -> tuple[tuple, int]:
         raise ValueError(f"a molecule is given by its formula as a string, got {text!r}")
     body = text.strip()
     charge = 0
-    m = re.fullmatch(r"(.*?)(\^?)(\d*)([+-]+)", body)
+    # charge: trailing signs ("H2+", "CO+", "H2-"); a count needs a caret ("CO^2+"), since "H2+" is H2 plus
+    m = re.fullmatch(r"(.*?)(?:\^(\d*))?([+-]+)", body)
     if m:
         body = m.group(1)
-        signs = m.group(4)
-        if len(set(signs)) != 1 or (m.group(3) and len(signs) != 1):
+        signs = m.group(3)
+        if len(set(signs)) != 1 or (m.group(2) and len(signs) != 1):
             raise ValueError(f"cannot read the charge of {text!r}")
-        k = int(m.group(3)) if m.group(3) else len(signs)
+        k = int(m.group(2)) if m.group(2) else len(signs)
         charge = k if signs[0] == "+" else -k
     counts: dict[int, int] = {}
     pos = 0
