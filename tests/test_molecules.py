@@ -348,7 +348,8 @@ def test_no_jump_hot_side():
 def test_results_independent_of_chunking():
     p = pack(SOLAR)
     T, P = _states(200, 5)
-    a = solve_chemistry(p, T, state="gas_pressure", value=P, parallel=True)
-    b = solve_chemistry(p, T, state="gas_pressure", value=P, parallel=False)
-    assert np.array_equal(a.ln_electron_density, b.ln_electron_density)
-    assert np.array_equal(a.molecule_density, b.molecule_density)
+    a = solve_chemistry(p, T, state="gas_pressure", value=P)  # > 64 points: the prange driver
+    b = np.array([solve_chemistry(p, T[i:i + 7], state="gas_pressure", value=P[i:i + 7]).ln_electron_density
+                  for i in range(0, 200, 7)], dtype=object)
+    b = np.concatenate(list(b))
+    assert np.array_equal(a.ln_electron_density, b)

@@ -43,35 +43,16 @@ continuous; ``Kp`` grows towards the dissociation limit).
 from __future__ import annotations
 
 import math
-from collections import namedtuple
-
 import numpy as np
 
 from . import status as st
 from .config import jit, pjit, prange
+from .molecules import MOL_FIELDS, MoleculeArrays  # noqa: F401 - re-exported
 from .constants import K_B, K_B_EV, LN_SAHA_CONST
 from .solver import MODE_ELECTRON_PRESSURE, MODE_GAS_PRESSURE, MODE_NUCLEI_DENSITY, solve_few
 
 __all__ = ["MoleculeArrays", "MOL_FIELDS", "chem_solve_few", "chem_solve_many", "TOL", "MAX_ITER",
            "MODE_GAS_PRESSURE", "MODE_NUCLEI_DENSITY", "MODE_ELECTRON_PRESSURE"]
-
-MOL_FIELDS = (
-    "former_elem",   # (J,) kernel element index of each molecule former
-    "mol_comp",      # (M, 3) former index of each component slot (-1: unused)
-    "mol_count",     # (M, 3) number of atoms of that component
-    "mol_natoms",    # (M,) atoms per molecule
-    "mol_charge",    # (M,) net charge
-    "mol_ion_elem",  # (M,) kernel element index of the charged product, or -1
-    "mol_ion_q",     # (M,) its charge (+1, or -1 for H-)
-    "mol_d0",        # (M,) D0 [eV] of the reaction
-    "mol_g",         # (M, n_t) g = ln Kp + D0/kT on the grid log10 T = g_lt0 + i g_dlt (cgs Kp)
-    "mol_slope",     # (M,) dg/dlnT used past the grid end
-    "g_lt0",
-    "g_dlt",
-)
-
-MoleculeArrays = namedtuple("MoleculeArrays", MOL_FIELDS)
-MoleculeArrays.__doc__ = "The molecules of a mixture packed for the kernels (see :mod:`ionbal.data.molecules`)."
 
 #: relative tolerance on every conservation equation
 TOL = 1e-13

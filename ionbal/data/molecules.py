@@ -23,7 +23,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from ..core.chem import MoleculeArrays
+from ..core.molecules import MoleculeArrays
 from ..core.constants import K_B_EV
 from .elements import SYMBOLS, atomic_number
 
@@ -184,7 +184,7 @@ class PackedMolecules:
 
     ``molecules`` (table order restricted to the mixture), ``formers`` (Z of every
     molecule-forming element), ``elem_former`` (per kernel element: former index or -1),
-    ``arrays`` (:class:`~ionbal.core.chem.MoleculeArrays`).
+    ``arrays`` (:class:`~ionbal.core.molecules.MoleculeArrays`).
     """
 
     molecules: tuple
