@@ -27,6 +27,7 @@ class ChemistrySolution(NamedTuple):
     ln_electron_density: np.ndarray
     ln_nuclei_density: np.ndarray
     free_neutral_atoms: np.ndarray   # (n, n_elements): n of the neutral atom of every element [cm^-3]
+    ln_free_neutral_atoms: np.ndarray  # its natural log (no underflow in hot gas)
     free_atoms: np.ndarray           # (n, n_elements): all atomic stages of every element [cm^-3]
     molecule_density: np.ndarray     # (n, n_molecules) [cm^-3]
     status: np.ndarray
@@ -72,12 +73,13 @@ def solve_chemistry(packed, temperature, *, state: str, value, molecules=True, t
     driver = chem.chem_solve_many if (parallel if parallel is not None else n > 64) else chem.chem_solve_few
     driver(mode, T, v, packed.arrays, pm.arrays, pm.elem_former, float(tol), int(max_iter), x, L, atoms, lnn,
            it, code)
-    neutral = _neutral_fraction(packed, T, x) * atoms
-    return ChemistrySolution(x, L, neutral, atoms, np.exp(lnn), code, it, pm)
+    with np.errstate(divide="ignore"):
+        ln_neutral = _ln_neutral_fraction(packed, T, x) + np.log(atoms)
+    return ChemistrySolution(x, L, np.exp(ln_neutral), ln_neutral, atoms, np.exp(lnn), code, it, pm)
 
 
-def _neutral_fraction(packed, T, x) -> np.ndarray:
-    """Fraction of each element's free atoms in the neutral stage (plain numpy)."""
+def _ln_neutral_fraction(packed, T, x) -> np.ndarray:
+    """ln of the fraction of each element's free atoms in the neutral stage (plain numpy)."""
     from .core.solver import log_fractions_many
 
     n = T.size
@@ -89,7 +91,7 @@ def _neutral_fraction(packed, T, x) -> np.ndarray:
         log_fractions_many(np.ascontiguousarray(T[ok]), np.ascontiguousarray(x[ok]), sel, packed.arrays, lf)
         out[ok] = lf
     neutral = packed.elem_first - packed.elem_q0
-    return np.exp(out[:, neutral])
+    return out[:, neutral]
 
 
 def gas_pressure(sol: ChemistrySolution, T) -> np.ndarray:

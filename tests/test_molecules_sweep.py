@@ -60,7 +60,7 @@ def _sweep(name, n, seed):
         worst = 0.0
         for i in range(n):
             ref = Reference(p, pm, T[i])
-            r_el, r_q, r_s = ref.residuals(np.log(s.free_neutral_atoms[i, fe]), s.ln_electron_density[i],
+            r_el, r_q, r_s = ref.residuals(s.ln_free_neutral_atoms[i, fe], s.ln_electron_density[i],
                                            s.ln_nuclei_density[i], mode, val[i])
             worst = max(worst, float(np.max(np.abs(r_el))), abs(r_q), abs(r_s))
         report[state] = (worst, int(s.iterations.max()), float(s.iterations.mean()))

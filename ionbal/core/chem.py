@@ -590,7 +590,7 @@ def chem_solve_few(mode, T, value, mix, mol, elem_former, tol, max_iter, out_x, 
     s0 = np.empty(npt, dtype=np.int64)
     guess = np.full(npt, np.nan)
     mol_of, cnt_of, start_of = former_molecules(mol)
-    solve_few(mode, T, value, guess, mix, 1e-14, 200, x0, L0, it0, s0)
+    solve_few(mode, T, value, guess, mix, 1e-13, 200, x0, L0, it0, s0)
     for p in range(npt):
         code = s0[p]
         if code == st.NO_SOLUTION and mode == MODE_ELECTRON_PRESSURE and x0[p] == x0[p]:
