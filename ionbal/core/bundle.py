@@ -18,6 +18,12 @@ Fields (fixed cgs units, energies in eV; see :mod:`ionbal.core.saha`):
 ``lnU``              ln U on the uniform grid ``log10 T = lt0 + i * dlt``
 ``lt0``, ``dlt``     that grid
 ``q_max``            net charge per nucleus at full ionization
+``stage_k``          position of each stage within its element (float)
+``stage_xcum``       cumulative ionization energy [eV] from the element's first stage
+``stage_lnu_fix``    constant ln U of each stage (0 where tabulated)
+``tab_stage``        the stages with a row of ``lnU``; ``tab_row`` those rows
+``elem_lnwz``        ln(w_e Z_e): the most charge per nucleus an element can carry
+(the last six built by :func:`ionbal.core.layout.closed_form_fields`).
 """
 
 from __future__ import annotations
@@ -27,6 +33,7 @@ from collections import namedtuple
 __all__ = ["MixtureArrays", "FIELDS"]
 
 FIELDS = ("elem_w", "elem_first", "elem_n", "elem_q0", "stage_chi", "stage_row", "stage_lnu_const",
-          "lnU", "lt0", "dlt", "q_max")
+          "lnU", "lt0", "dlt", "q_max",
+          "stage_k", "stage_xcum", "stage_lnu_fix", "tab_stage", "tab_row", "elem_lnwz")
 
 MixtureArrays = namedtuple("MixtureArrays", FIELDS)
