@@ -111,6 +111,30 @@ def log_weights(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, ln
 
 
 @jit
+def closed_log_weights(T, mix, C):
+    """Log Saha weights of every stage at T in closed form (see :mod:`ionbal.core.layout`).
+
+    ``C[s] = k base - X_s / kT + ln U_s``: one branch-free vector loop over the
+    stages (no recurrence), then the tabulated ln U of the few stages that have
+    a row.  Equal to :func:`log_weights` up to a constant per element (its
+    first stage's ln U), which cancels in every fraction and moment.
+    """
+    lnU = mix.lnU
+    i, w = table_position(T, mix.lt0, mix.dlt, lnU.shape[1])
+    base, beta = saha_base(T)
+    sk = mix.stage_k
+    xc = mix.stage_xcum
+    fix = mix.stage_lnu_fix
+    for s in range(C.size):
+        C[s] = sk[s] * base - xc[s] * beta + fix[s]
+    tab_stage = mix.tab_stage
+    tab_row = mix.tab_row
+    for j in range(tab_stage.size):
+        r = tab_row[j]
+        C[tab_stage[j]] += (1.0 - w) * lnU[r, i] + w * lnU[r, i + 1]
+
+
+@jit
 def find_peak(C, f, n, x, kp0):
     """Most populated stage position of one element at ``x``, and its log weight.
 

@@ -38,15 +38,13 @@ from .config import jit, pjit, prange
 from .constants import K_B
 from .saha import (
     cached_charge_moments,
+    closed_log_weights,
     dlnu_apply,
     dlnu_check,
     dlnu_restore,
     element_charge_powers,
     element_log_fractions,
-    element_log_weights,
     log_weights,
-    saha_base,
-    table_position,
 )
 
 MODE_GAS_PRESSURE = 0
@@ -226,8 +224,7 @@ def point_weights(T, T_done, C, mix, dl_stage, dl_row, saved, applied):
     if applied:
         dlnu_restore(C, dl_stage, saved)
     if not (T == T_done):
-        log_weights(T, mix.elem_first, mix.elem_n, mix.stage_chi, mix.stage_row, mix.stage_lnu_const,
-                    mix.lnU, mix.lt0, mix.dlt, C)
+        closed_log_weights(T, mix, C)
     dlnu_apply(C, dl_stage, dl_row, saved)
     return T
 
@@ -346,26 +343,21 @@ def log_fractions_chunk(T, x, sel_elem, mix, dl_stage, dl_val, out):
     """Serial body of :func:`log_fractions_many_dlnu` for one chunk of points."""
     elem_first = mix.elem_first
     elem_n = mix.elem_n
-    n_stage = mix.stage_chi.size
-    n_t = mix.lnU.shape[1]
-    C = np.empty(n_stage)
-    row = np.empty(n_stage)
+    C = np.empty(mix.stage_chi.size)
+    row = np.empty(mix.stage_chi.size)
+    saved = np.empty(dl_stage.size)
+    T_done = np.nan
+    applied = False
     for p in range(T.size):
         ok = point_ok(T[p], x[p])
         if ok:
-            i, w = table_position(T[p], mix.lt0, mix.dlt, n_t)
-            base, beta = saha_base(T[p])
+            T_done = point_weights(T[p], T_done, C, mix, dl_stage, dl_val[p], saved, applied)
+            applied = True
         for j in range(sel_elem.size):
             e = sel_elem[j]
             f = elem_first[e]
             ne = elem_n[e]
             if ok:
-                element_log_weights(e, base, beta, i, w, elem_first, elem_n, mix.stage_chi, mix.stage_row,
-                                    mix.stage_lnu_const, mix.lnU, C)
-                for jj in range(dl_stage.size):
-                    s = dl_stage[jj]
-                    if s >= f and s < f + ne:
-                        C[s] += dl_val[p, jj]
                 element_log_fractions(C, f, ne, x[p], row)
                 for k in range(ne):
                     out[p, f + k] = row[f + k]
@@ -440,6 +432,7 @@ def tile_chunk(T, x, sel_stage, mix, dl_stage, dl_val, out_frac, out_moments, wa
                     need[e] = True
                     break
     norm = np.empty(n_elem)
+    norm_l = np.empty(n_elem)
     T_done = np.nan
     applied = False
     for p in range(T.size):
@@ -472,7 +465,8 @@ def tile_chunk(T, x, sel_stage, mix, dl_stage, dl_val, out_frac, out_moments, wa
                 s0 = 0.0
                 for k in range(elem_n[e]):
                     s0 += math.exp(C[f + k] - k * xp - m)
-                norm[e] = m + math.log(s0)
+                norm[e] = m
+                norm_l[e] = math.log(s0)
         out_moments[p, 0] = a
         out_moments[p, 1] = b
         out_moments[p, 2] = d
@@ -481,7 +475,7 @@ def tile_chunk(T, x, sel_stage, mix, dl_stage, dl_val, out_frac, out_moments, wa
                 s = sel_stage[j]
                 e = sel_e[j]
                 k = s - elem_first[e]
-                out_frac[p, j] = math.exp(C[s] - k * xp - norm[e])
+                out_frac[p, j] = math.exp(C[s] - k * xp - norm[e] - norm_l[e])
 
 
 @pjit
