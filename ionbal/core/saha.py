@@ -112,7 +112,7 @@ def log_weights(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, ln
 
 @jit
 def closed_log_weights(T, mix, C):
-    """Log Saha weights of every stage at T in closed form (see :mod:`ionbal.core.layout`).
+    """Log Saha weights of every stage at T in closed form (fields built by :func:`ionbal.core.bundle.closed_form_fields`).
 
     ``C[s] = k base - X_s / kT + ln U_s``: one branch-free vector loop over the
     stages (no recurrence), then the tabulated ln U of the few stages that have

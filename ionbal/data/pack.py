@@ -14,8 +14,7 @@ from typing import Mapping
 
 import numpy as np
 
-from ..core.bundle import MixtureArrays
-from ..core.layout import closed_form_fields
+from ..core.bundle import MixtureArrays, closed_form_fields
 from ..core.constants import AMU
 from .elements import atomic_mass
 from .mixture import Mixture
