@@ -250,3 +250,109 @@ def test_to_table():
     assert t["electron_density"].unit.to_string() == "1 / cm3"
     with pytest.raises(ValueError, match="0-D or 1-D"):
         ionbal.solve(np.full((2, 2), 5000.0), gas_pressure=1e5).to_table()
+
+
+# --- issue 12: cached window weights, ln U corrections (dense-gas hook), one pass per grid tile ---------
+
+def _states(n=400, seed=11):
+    from ionbal._problems import random_states
+    return random_states(n, seed=seed)
+
+
+def _solve_kernel(packed, T, P, dl_stage=None, dl_val=None):
+    from ionbal.core import solver as sv
+    n = T.size
+    outs = (np.empty(n), np.empty(n), np.empty(n, dtype=np.int32), np.empty(n, dtype=np.int8))
+    args = (sv.MODE_GAS_PRESSURE, T, P, np.full(n, np.nan), packed.arrays)
+    if dl_stage is None:
+        sv.solve_many(*args, sv.TOL, sv.MAX_ITER, *outs)
+    else:
+        sv.solve_many_dlnu(*args, dl_stage, dl_val, sv.TOL, sv.MAX_ITER, *outs)
+    return outs
+
+
+def _lnu_at(packed, s, T):
+    from ionbal.core.saha import stage_lnu, table_position
+    a = packed.arrays
+    out = np.empty(T.size)
+    for j, t in enumerate(T):
+        i, w = table_position(t, a.lt0, a.dlt, a.lnU.shape[1])
+        out[j] = stage_lnu(s, i, w, a.stage_row, a.stage_lnu_const, a.lnU)
+    return out
+
+
+def test_lnu_correction_equals_partition_function_override():
+    """A ln U correction equal to ln(U_override) - ln U(T) gives the override's answer (self-consistency)."""
+    from ionbal.core import solver as sv
+    T, P = _states()
+    over = {"Fe II": 50.0, "Ca I": 3.0, "H I": 2.5}
+    ref = ionbal.solve(T, gas_pressure=P, partition_functions=over)
+    base = ionbal.solve(T[:1], gas_pressure=P[:1])._packed
+    stages = np.array([base.stage_index(s) for s in over], dtype=np.int64)
+    dl = np.column_stack([np.log(v) - _lnu_at(base, s, T) for s, v in zip(stages, over.values())])
+    x, lnn, it, code = _solve_kernel(base, T, P, stages, dl)
+    assert np.all(code == 0)
+    np.testing.assert_allclose(x, np.log(ref.electron_density), rtol=1e-12, atol=0)
+    # fractions and moments with the same corrections
+    over_packed = ref._packed
+    sel = np.arange(base.arrays.elem_w.size, dtype=np.int64)
+    lf_ref = np.full((T.size, base.arrays.stage_chi.size), np.nan)
+    sv.log_fractions_many(T, x, sel, over_packed.arrays, lf_ref)
+    lf = np.full_like(lf_ref, np.nan)
+    sv.log_fractions_many_dlnu(T, x, sel, base.arrays, stages, dl, lf)
+    ok = lf_ref > -600
+    np.testing.assert_allclose(np.exp(lf[ok]), np.exp(lf_ref[ok]), rtol=1e-11, atol=1e-300)
+    m_ref = np.empty((T.size, 3))
+    sv.ion_moments_many(T, x, over_packed.arrays, m_ref)
+    m = np.empty((T.size, 3))
+    sv.ion_moments_many_dlnu(T, x, base.arrays, stages, dl, m)
+    np.testing.assert_allclose(m, m_ref, rtol=1e-11)
+    fr = np.empty((T.size, stages.size))
+    m2 = np.empty((T.size, 3))
+    sv.tile_outputs_many_dlnu(T, x, stages, base.arrays, stages, dl, fr, m2)
+    np.testing.assert_allclose(fr, np.exp(lf_ref[:, stages]), rtol=1e-11, atol=1e-300)
+    np.testing.assert_allclose(m2, m_ref, rtol=1e-11)
+
+
+def test_empty_correction_list_is_bitwise_the_plain_solve_and_bad_lists_are_flagged():
+    T, P = _states(300, seed=2)
+    base = ionbal.solve(T[:1], gas_pressure=P[:1])._packed
+    a = _solve_kernel(base, T, P)
+    b = _solve_kernel(base, T, P, np.empty(0, dtype=np.int64), np.empty((T.size, 0)))
+    for u, v in zip(a, b):
+        assert np.array_equal(u, v)
+    bad = _solve_kernel(base, T, P, np.array([10**6], dtype=np.int64), np.zeros((T.size, 1)))
+    assert np.all(bad[3] == ionbal.core.status.INVALID_INPUT) and np.all(np.isnan(bad[0]))
+    bad = _solve_kernel(base, T, P, np.array([1], dtype=np.int64), np.zeros((T.size + 1, 1)))
+    assert np.all(bad[3] == ionbal.core.status.INVALID_INPUT)
+
+
+def test_tile_outputs_match_log_fractions_and_moments():
+    """One pass per tile equals exp(log_fractions_many) and ion_moments_many; NaN where x is not finite."""
+    from ionbal.core import solver as sv
+    from ionbal._problems import structured_grid
+    T, P = structured_grid(12, 9)
+    r = ionbal.solve(T, gas_pressure=P)
+    p = r._packed
+    x = np.log(r.electron_density)
+    x[5] = np.nan
+    n_stage = p.arrays.stage_chi.size
+    sel_stage = np.array([p.stage_index(s) for s in ("H-", "H I", "H II", "Fe I", "Fe II", "Fe XXVI", "O III",
+                                                      "Ca II", "U I")], dtype=np.int64)
+    sel_elem = np.arange(p.arrays.elem_w.size, dtype=np.int64)
+    lf = np.full((T.size, n_stage), np.nan)
+    sv.log_fractions_many(T, x, sel_elem, p.arrays, lf)
+    mom = np.empty((T.size, 3))
+    sv.ion_moments_many(T, x, p.arrays, mom)
+    fr = np.empty((T.size, sel_stage.size))
+    m2 = np.empty((T.size, 3))
+    sv.tile_outputs_many(T, x, sel_stage, p.arrays, fr, m2)
+    np.testing.assert_allclose(fr, np.exp(lf[:, sel_stage]), rtol=1e-14, atol=1e-300)  # to an ulp or two
+    np.testing.assert_allclose(m2, mom, rtol=1e-14)
+    assert np.all(np.isnan(fr[5])) and np.all(np.isnan(m2[5]))
+    # split into tiles of any size: bitwise the same
+    fr2 = np.empty_like(fr)
+    m3 = np.empty_like(m2)
+    for a in range(0, T.size, 7):
+        sv.tile_outputs_many(T[a:a + 7], x[a:a + 7], sel_stage, p.arrays, fr2[a:a + 7], m3[a:a + 7])
+    assert np.array_equal(fr2, fr, equal_nan=True) and np.array_equal(m3, m2, equal_nan=True)

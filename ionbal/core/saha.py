@@ -111,6 +111,30 @@ def log_weights(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, ln
 
 
 @jit
+def closed_log_weights(T, mix, C):
+    """Log Saha weights of every stage at T in closed form (fields built by :func:`ionbal.core.bundle.closed_form_fields`).
+
+    ``C[s] = k base - X_s / kT + ln U_s``: one branch-free vector loop over the
+    stages (no recurrence), then the tabulated ln U of the few stages that have
+    a row.  Equal to :func:`log_weights` up to a constant per element (its
+    first stage's ln U), which cancels in every fraction and moment.
+    """
+    lnU = mix.lnU
+    i, w = table_position(T, mix.lt0, mix.dlt, lnU.shape[1])
+    base, beta = saha_base(T)
+    sk = mix.stage_k
+    xc = mix.stage_xcum
+    fix = mix.stage_lnu_fix
+    for s in range(C.size):
+        C[s] = sk[s] * base - xc[s] * beta + fix[s]
+    tab_stage = mix.tab_stage
+    tab_row = mix.tab_row
+    for j in range(tab_stage.size):
+        r = tab_row[j]
+        C[tab_stage[j]] += (1.0 - w) * lnU[r, i] + w * lnU[r, i + 1]
+
+
+@jit
 def find_peak(C, f, n, x, kp0):
     """Most populated stage position of one element at ``x``, and its log weight.
 
@@ -293,3 +317,169 @@ def element_charge_powers(C, f, n, q0, x):
             sq53 += wt * q ** (5.0 / 3.0)
             spos += wt
     return sq2 / s0, sq53 / s0, spos / s0
+
+
+#: a cached window is re-based (fresh exps, new window) once ``|x - x0|`` times the largest
+#: stage distance from its peak exceeds this [ln]: the stages left out at ``x0`` (below -CUT)
+#: then stay below -(CUT - REBASE) ~ 6e-19 of the peak, and no power overflows
+REBASE = 4.0
+
+
+@jit
+def window_setup(C, f, n, q0, x, kp0, A):
+    """Populated window of one element at ``x`` with its weights ``A[f+k] = exp(C_k - k x - m)``.
+
+    Returns ``(kp, lo, hi)`` (see :func:`populated_window`); later evaluations
+    at a nearby ``x'`` reuse ``A`` through :func:`window_moments` with
+    ``z = exp(-(x' - x))``, one multiply per stage instead of one ``exp``.
+    """
+    kp, m, lo, hi = populated_window(C, f, n, q0, x, kp0)
+    for k in range(lo, hi + 1):
+        A[f + k] = math.exp(C[f + k] - k * x - m)
+    return kp, lo, hi
+
+
+@jit
+def window_moments(A, f, q0, kp, lo, hi, z, iz):
+    """Charge moments of one element from cached window weights ``A_k z^(k - kp)``.
+
+    ``z = exp(-(x - x0))`` with ``x0`` where :func:`window_setup` filled ``A``
+    (``z = iz = 1`` at ``x0`` itself: the multiplies are then exact).  Returns
+    ``(pos, dpos, neg, dneg)`` as :func:`element_moments`; sums run outwards
+    from the peak, relative to it.
+    """
+    s0 = A[f + kp]
+    s1 = 0.0
+    s2 = 0.0
+    sp = 0.0
+    spd = 0.0
+    sn = 0.0
+    snd = 0.0
+    if q0 < 0:
+        q = q0 + kp
+        if q > 0:
+            sp += q * s0
+        elif q < 0:
+            sn -= q * s0
+    p = 1.0
+    for k in range(kp + 1, hi + 1):
+        p *= z
+        wt = A[f + k] * p
+        d = k - kp
+        s0 += wt
+        s1 += wt * d
+        s2 += wt * d * d
+        if q0 < 0:
+            q = q0 + k
+            if q > 0:
+                sp += q * wt
+                spd += q * d * wt
+            elif q < 0:
+                sn -= q * wt
+                snd -= q * d * wt
+    p = 1.0
+    for k in range(kp - 1, lo - 1, -1):
+        p *= iz
+        wt = A[f + k] * p
+        d = k - kp
+        s0 += wt
+        s1 += wt * d
+        s2 += wt * d * d
+        if q0 < 0:
+            q = q0 + k
+            if q > 0:
+                sp += q * wt
+                spd += q * d * wt
+            elif q < 0:
+                sn -= q * wt
+                snd -= q * d * wt
+    mean_d = s1 / s0
+    if q0 < 0:
+        return sp / s0, -(spd - mean_d * sp) / s0, sn / s0, -(snd - mean_d * sn) / s0
+    var = s2 / s0 - mean_d * mean_d
+    if var < 0.0:
+        var = 0.0
+    return (q0 + kp) + mean_d, -var, 0.0, 0.0
+
+
+@jit
+def cached_charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0, kpk, wlo, whi, wx0, A):
+    """:func:`charge_moments` with each element's window weights kept between calls.
+
+    Per element, ``kpk``/``wlo``/``whi``/``wx0`` hold the window and the ``x0``
+    of the cached weights in ``A`` (``kpk[e] < 0``: none yet, the first call
+    scans every stage).  An element whose window is still valid at ``x``
+    (``|x - x0| * max distance from its peak <= REBASE``) costs one multiply
+    per stage; otherwise it is re-based at ``x`` (fresh exps, new window,
+    peak climbed from the old one).  ``z`` is computed once per distinct
+    ``x0`` in a row, so an evaluation costs a handful of exps, not one per stage.
+    """
+    Qpos = 0.0
+    Qneg = 0.0
+    dQpos = 0.0
+    dQneg = 0.0
+    zx0 = np.nan
+    z = 1.0
+    iz = 1.0
+    for e in range(elem_w.size):
+        f = elem_first[e]
+        n = elem_n[e]
+        kp = kpk[e]
+        q0 = elem_q0[e]
+        if kp >= 0:
+            dist = kp if kp > n - 1 - kp else n - 1 - kp
+            if abs(x - wx0[e]) * dist > REBASE:
+                kp = -2 - kp  # re-base, climbing from the old peak
+        if kp < 0:
+            kp, lo, hi = window_setup(C, f, n, q0, x, -1 if kp == -1 else -2 - kp, A)
+            kpk[e] = kp
+            wlo[e] = lo
+            whi[e] = hi
+            wx0[e] = x
+            pos, dpos, neg, dneg = window_moments(A, f, q0, kp, lo, hi, 1.0, 1.0)
+        else:
+            x0 = wx0[e]
+            if not (x0 == zx0):
+                zx0 = x0
+                z = math.exp(x0 - x)
+                iz = 1.0 / z
+            pos, dpos, neg, dneg = window_moments(A, f, q0, kp, wlo[e], whi[e], z, iz)
+        we = elem_w[e]
+        Qpos += we * pos
+        dQpos += we * dpos
+        Qneg += we * neg
+        dQneg += we * dneg
+    return Qpos, Qneg, dQpos, dQneg
+
+
+@jit
+def dlnu_check(n_stage, n_points, dl_stage, dl_val):
+    """True when the ln U corrections are usable: stage indices in range, ``dl_val`` of shape (n_points, k)."""
+    if dl_val.shape[0] != n_points or dl_val.shape[1] != dl_stage.size:
+        return False
+    for j in range(dl_stage.size):
+        if dl_stage[j] < 0 or dl_stage[j] >= n_stage:
+            return False
+    return True
+
+
+@jit
+def dlnu_apply(C, dl_stage, dl_row, saved):
+    """Add the ln U corrections ``dl_row`` of stages ``dl_stage`` to the log weights ``C``.
+
+    A correction to ln U of stage ``s`` multiplies its population by
+    ``exp(dl)``: ``C[s] += dl`` (fractions are unchanged by a common shift of
+    an element's ``C``, so the first stage needs no special case).  The old
+    values go to ``saved`` for :func:`dlnu_restore`.  Nothing is done for k = 0.
+    """
+    for j in range(dl_stage.size):
+        s = dl_stage[j]
+        saved[j] = C[s]
+        C[s] += dl_row[j]
+
+
+@jit
+def dlnu_restore(C, dl_stage, saved):
+    """Undo :func:`dlnu_apply` exactly (reverse order, so repeated stages restore too)."""
+    for j in range(dl_stage.size - 1, -1, -1):
+        C[dl_stage[j]] = saved[j]

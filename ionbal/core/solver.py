@@ -37,13 +37,14 @@ from . import status as st
 from .config import jit, pjit, prange
 from .constants import K_B
 from .saha import (
-    charge_moments,
+    cached_charge_moments,
+    closed_log_weights,
+    dlnu_apply,
+    dlnu_check,
+    dlnu_restore,
     element_charge_powers,
     element_log_fractions,
-    element_log_weights,
     log_weights,
-    saha_base,
-    table_position,
 )
 
 MODE_GAS_PRESSURE = 0
@@ -90,38 +91,26 @@ def weak_ionization_guess(C, lnN, elem_w, elem_first, elem_q0):
 
 
 @jit
-def solve_point(mode, T, value, x_guess, C, kpk, mix, tol, max_iter):
-    """Solve one state.  ``C`` (n_stages) and ``kpk`` (int, n_elements) are work arrays.
-
-    ``mix`` is the :class:`~ionbal.core.bundle.MixtureArrays` bundle.
-    Returns ``(x, ln_n_nuc, iterations, status)``.
-    """
-    elem_w = mix.elem_w
-    elem_first = mix.elem_first
-    elem_n = mix.elem_n
-    elem_q0 = mix.elem_q0
-    stage_chi = mix.stage_chi
-    stage_row = mix.stage_row
-    stage_lnu_const = mix.stage_lnu_const
-    lnU = mix.lnU
-    lt0 = mix.lt0
-    dlt = mix.dlt
-    q_max = mix.q_max
-    nan = np.nan
+def state_check(T, value, lt0, dlt, n_t):
+    """Status of a state before any solve: OK, INVALID_INPUT or TEMPERATURE_OUT_OF_RANGE."""
     if not (T > 0.0 and T < np.inf and value > 0.0 and value < np.inf):
-        return nan, nan, 0, st.INVALID_INPUT
-    n_t = lnU.shape[1]
+        return st.INVALID_INPUT
     lgT = math.log10(T)
     if lgT < lt0 - 1e-12 or lgT > lt0 + (n_t - 1) * dlt + 1e-12:
-        return nan, nan, 0, st.TEMPERATURE_OUT_OF_RANGE
-
-    log_weights(T, elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)
-    return solve_from_weights(mode, T, value, x_guess, C, kpk, mix, tol, max_iter)
+        return st.TEMPERATURE_OUT_OF_RANGE
+    return st.OK
 
 
 @jit
-def solve_from_weights(mode, T, value, x_guess, C, kpk, mix, tol, max_iter):
-    """The solve of :func:`solve_point` once the cumulative log Saha weights ``C`` of the point are known."""
+def solve_point(mode, T, value, x_guess, C, work, mix, tol, max_iter):
+    """Solve one state whose log Saha weights ``C`` (n_stages) are already built at ``T``.
+
+    ``work = (kpk, wlo, whi, wx0, A)`` are per-element / per-stage work arrays
+    of :func:`.saha.cached_charge_moments` (reset here: no state carried
+    between points).  The caller has checked the state (:func:`state_check`).
+    Returns ``(x, ln_n_nuc, iterations, status)``.
+    """
+    kpk, wlo, whi, wx0, A = work
     elem_w = mix.elem_w
     elem_first = mix.elem_first
     elem_n = mix.elem_n
@@ -130,11 +119,12 @@ def solve_from_weights(mode, T, value, x_guess, C, kpk, mix, tol, max_iter):
     nan = np.nan
     kT = K_B * T
     for e in range(kpk.size):
-        kpk[e] = -1  # first evaluation scans every stage: no state carried between points
+        kpk[e] = -1  # first evaluation scans every stage
 
     if mode == MODE_ELECTRON_PRESSURE:
         x = math.log(value) - math.log(kT)
-        Qpos, Qneg, dQpos, dQneg = charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0, kpk)
+        Qpos, Qneg, dQpos, dQneg = cached_charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0,
+                                                         kpk, wlo, whi, wx0, A)
         Q = Qpos - Qneg
         if not (Q > 0.0):
             return x, nan, 1, st.NO_SOLUTION
@@ -161,7 +151,8 @@ def solve_from_weights(mode, T, value, x_guess, C, kpk, mix, tol, max_iter):
     lnn = lnN
     dlnn = 0.0
     for it in range(1, max_iter + 1):
-        Qpos, Qneg, dQpos, dQneg = charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0, kpk)
+        Qpos, Qneg, dQpos, dQneg = cached_charge_moments(C, x, elem_w, elem_first, elem_n, elem_q0,
+                                                         kpk, wlo, whi, wx0, A)
         valid = Qpos > 0.0
         if mode == MODE_GAS_PRESSURE:
             ex = math.exp(x - lnN)
@@ -220,39 +211,180 @@ def solve_from_weights(mode, T, value, x_guess, C, kpk, mix, tol, max_iter):
 
 
 @jit
-def solve_few(mode, T, value, x_guess, mix, tol, max_iter, out_x, out_ln_nuc, out_iter, out_status):
-    """Solve the points one after another on the calling thread (work arrays allocated once).
+def point_weights(T, T_done, C, mix, dl_stage, dl_row, saved, applied):
+    """Make ``C`` the log Saha weights at ``T`` with this point's ln U corrections; returns the new ``T_done``.
 
-    Same arguments as :func:`solve_many` and (bitwise) the same results: the
-    parallel driver runs this on each of its chunks, and the API calls it
-    directly for a handful of points, where waking the thread pool would cost
-    more than the solve (on a busy machine much more).
+    ``C`` holds the weights at ``T_done`` plus the corrections of the previous
+    point when ``applied``; those are undone exactly, the weights are rebuilt
+    only when ``T`` differs from ``T_done`` (a row of a T-major grid builds
+    them once), and this point's corrections are added.  Reusing a row is
+    bitwise the same as rebuilding it, so results do not depend on the order
+    or chunking of the points.
     """
-    C = np.empty(mix.stage_chi.size)
-    kpk = np.empty(mix.elem_w.size, dtype=np.int64)
+    if applied:
+        dlnu_restore(C, dl_stage, saved)
+    if not (T == T_done):
+        closed_log_weights(T, mix, C)
+    dlnu_apply(C, dl_stage, dl_row, saved)
+    return T
+
+
+@jit
+def solve_chunk(mode, T, value, x_guess, mix, dl_stage, dl_val, tol, max_iter, out_x, out_ln_nuc, out_iter,
+                out_status):
+    """Solve the points one after another on the calling thread; the one implementation of every solve."""
+    n_stage = mix.stage_chi.size
+    n_elem = mix.elem_w.size
+    if not dlnu_check(n_stage, T.size, dl_stage, dl_val):
+        for i in range(T.size):
+            out_x[i] = np.nan
+            out_ln_nuc[i] = np.nan
+            out_iter[i] = 0
+            out_status[i] = st.INVALID_INPUT
+        return
+    C = np.empty(n_stage)
+    A = np.empty(n_stage)
+    work = (np.empty(n_elem, dtype=np.int64), np.empty(n_elem, dtype=np.int64),
+            np.empty(n_elem, dtype=np.int64), np.empty(n_elem), A)
+    saved = np.empty(dl_stage.size)
+    n_t = mix.lnU.shape[1]
+    T_done = np.nan
+    applied = False
     for i in range(T.size):
-        x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, kpk, mix, tol, max_iter)
+        code = state_check(T[i], value[i], mix.lt0, mix.dlt, n_t)
+        if code != st.OK:
+            out_x[i] = np.nan
+            out_ln_nuc[i] = np.nan
+            out_iter[i] = 0
+            out_status[i] = code
+            continue
+        T_done = point_weights(T[i], T_done, C, mix, dl_stage, dl_val[i], saved, applied)
+        applied = True
+        x, lnn, it, code = solve_point(mode, T[i], value[i], x_guess[i], C, work, mix, tol, max_iter)
         out_x[i] = x
         out_ln_nuc[i] = lnn
         out_iter[i] = it
         out_status[i] = code
 
 
+@jit
+def no_dlnu(n):
+    """The empty ln U correction list for ``n`` points (k = 0)."""
+    return np.empty(0, dtype=np.int64), np.empty((n, 0))
+
+
+@jit
+def solve_few(mode, T, value, x_guess, mix, tol, max_iter, out_x, out_ln_nuc, out_iter, out_status):
+    """Solve the points one after another on the calling thread (work arrays allocated once).
+
+    Same arguments as :func:`solve_many` and (bitwise) the same results: the
+    parallel driver runs the same chunk solve on each of its chunks, and the
+    API calls this directly for a handful of points, where waking the thread
+    pool would cost more than the solve (on a busy machine much more).
+    """
+    dl_stage, dl_val = no_dlnu(T.size)
+    solve_chunk(mode, T, value, x_guess, mix, dl_stage, dl_val, tol, max_iter, out_x, out_ln_nuc, out_iter,
+                out_status)
+
+
+@pjit
+def solve_many_dlnu(mode, T, value, x_guess, mix, dl_stage, dl_val, tol, max_iter, out_x, out_ln_nuc, out_iter,
+                    out_status):
+    """:func:`solve_many` with additive ln U corrections per point (dense-gas hook).
+
+    ``dl_stage`` (int64[k]) lists flat stage indices and ``dl_val``
+    (float64[n_points, k]) the corrections to ln U of those stages at each
+    point; k may be 0.  A bad list (index out of range, wrong shape) marks
+    every point INVALID_INPUT.
+    """
+    n = T.size
+    if not dlnu_check(mix.stage_chi.size, n, dl_stage, dl_val):
+        for i in range(n):
+            out_x[i] = np.nan
+            out_ln_nuc[i] = np.nan
+            out_iter[i] = 0
+            out_status[i] = st.INVALID_INPUT
+        return
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        solve_chunk(mode, T[start:stop], value[start:stop], x_guess[start:stop], mix, dl_stage,
+                    dl_val[start:stop], tol, max_iter, out_x[start:stop], out_ln_nuc[start:stop],
+                    out_iter[start:stop], out_status[start:stop])
+
+
 @pjit
 def solve_many(mode, T, value, x_guess, mix, tol, max_iter, out_x, out_ln_nuc, out_iter, out_status):
     """Solve every point of the 1-D arrays ``T``, ``value`` (and ``x_guess``, NaN = none).
 
-    Points are split into contiguous chunks, one work array per chunk, so the
-    ``prange`` body allocates nothing per point.  Each point is solved on its
-    own (no state carried between points), so results do not depend on how
-    the points are split into calls, chunks or tiles.
+    Points are split into contiguous chunks, one set of work arrays per chunk,
+    so the ``prange`` body allocates nothing per point.  Each point is solved
+    on its own (no state carried between points; consecutive points of equal
+    T share the Saha weights, bitwise the same as rebuilding them), so results
+    do not depend on how the points are split into calls, chunks or tiles.
     """
     n = T.size
+    dl_stage, dl_val = no_dlnu(n)
     n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
         start, stop = chunk_bounds(c, n, n_chunks)
-        solve_few(mode, T[start:stop], value[start:stop], x_guess[start:stop], mix, tol, max_iter,
-                  out_x[start:stop], out_ln_nuc[start:stop], out_iter[start:stop], out_status[start:stop])
+        solve_chunk(mode, T[start:stop], value[start:stop], x_guess[start:stop], mix, dl_stage,
+                    dl_val[start:stop], tol, max_iter, out_x[start:stop], out_ln_nuc[start:stop],
+                    out_iter[start:stop], out_status[start:stop])
+
+
+@jit
+def point_ok(T, x):
+    return T > 0.0 and T < np.inf and x == x and abs(x) < np.inf
+
+
+@jit
+def log_fractions_chunk(T, x, sel_elem, mix, dl_stage, dl_val, out):
+    """Serial body of :func:`log_fractions_many_dlnu` for one chunk of points."""
+    elem_first = mix.elem_first
+    elem_n = mix.elem_n
+    C = np.empty(mix.stage_chi.size)
+    row = np.empty(mix.stage_chi.size)
+    saved = np.empty(dl_stage.size)
+    T_done = np.nan
+    applied = False
+    for p in range(T.size):
+        ok = point_ok(T[p], x[p])
+        if ok:
+            T_done = point_weights(T[p], T_done, C, mix, dl_stage, dl_val[p], saved, applied)
+            applied = True
+        for j in range(sel_elem.size):
+            e = sel_elem[j]
+            f = elem_first[e]
+            ne = elem_n[e]
+            if ok:
+                element_log_fractions(C, f, ne, x[p], row)
+                for k in range(ne):
+                    out[p, f + k] = row[f + k]
+            else:
+                for k in range(ne):
+                    out[p, f + k] = np.nan
+
+
+@pjit
+def log_fractions_many_dlnu(T, x, sel_elem, mix, dl_stage, dl_val, out):
+    """:func:`log_fractions_many` with additive ln U corrections (see :func:`solve_many_dlnu`).
+
+    A bad correction list gives NaN in every selected column.
+    """
+    n = T.size
+    if not dlnu_check(mix.stage_chi.size, n, dl_stage, dl_val):
+        for p in range(n):
+            for j in range(sel_elem.size):
+                e = sel_elem[j]
+                for k in range(mix.elem_n[e]):
+                    out[p, mix.elem_first[e] + k] = np.nan
+        return
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        log_fractions_chunk(T[start:stop], x[start:stop], sel_elem, mix, dl_stage, dl_val[start:stop],
+                            out[start:stop])
 
 
 @pjit
@@ -263,45 +395,165 @@ def log_fractions_many(T, x, sel_elem, mix, out):
     and only the columns of the selected elements are written (others are left
     untouched).  Points with non-finite ``x`` get NaN.
     """
+    n = T.size
+    dl_stage, dl_val = no_dlnu(n)
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        log_fractions_chunk(T[start:stop], x[start:stop], sel_elem, mix, dl_stage, dl_val[start:stop],
+                            out[start:stop])
+
+
+@jit
+def tile_chunk(T, x, sel_stage, mix, dl_stage, dl_val, out_frac, out_moments, want_frac):
+    """Serial body of :func:`tile_outputs_many_dlnu` (and of the moments kernels) for one chunk.
+
+    Per point: the log Saha weights of every stage once (shared by a row of
+    equal T), the three validity moments of :func:`ion_moments_many` and,
+    when ``want_frac``, the fractions of the selected stages.
+    """
     elem_w = mix.elem_w
     elem_first = mix.elem_first
     elem_n = mix.elem_n
     elem_q0 = mix.elem_q0
-    stage_chi = mix.stage_chi
-    stage_row = mix.stage_row
-    stage_lnu_const = mix.stage_lnu_const
-    lnU = mix.lnU
-    lt0 = mix.lt0
-    dlt = mix.dlt
+    n_stage = mix.stage_chi.size
+    n_elem = elem_w.size
+    C = np.empty(n_stage)
+    saved = np.empty(dl_stage.size)
+    # element and position of each selected stage; which elements need a normalization
+    sel_e = np.empty(sel_stage.size, dtype=np.int64)
+    need = np.zeros(n_elem, dtype=np.bool_)
+    if want_frac:
+        for j in range(sel_stage.size):
+            s = sel_stage[j]
+            for e in range(n_elem):
+                if s >= elem_first[e] and s < elem_first[e] + elem_n[e]:
+                    sel_e[j] = e
+                    need[e] = True
+                    break
+    norm = np.empty(n_elem)
+    norm_l = np.empty(n_elem)
+    T_done = np.nan
+    applied = False
+    for p in range(T.size):
+        if not point_ok(T[p], x[p]):
+            for j in range(3):
+                out_moments[p, j] = np.nan
+            if want_frac:
+                for j in range(sel_stage.size):
+                    out_frac[p, j] = np.nan
+            continue
+        T_done = point_weights(T[p], T_done, C, mix, dl_stage, dl_val[p], saved, applied)
+        applied = True
+        xp = x[p]
+        a = 0.0
+        b = 0.0
+        d = 0.0
+        for e in range(n_elem):
+            q2, q53, pos = element_charge_powers(C, elem_first[e], elem_n[e], elem_q0[e], xp)
+            a += elem_w[e] * q2
+            b += elem_w[e] * q53
+            d += elem_w[e] * pos
+            if want_frac and need[e]:
+                # the normalization of element_log_fractions: every stage, relative to the maximum
+                f = elem_first[e]
+                m = -np.inf
+                for k in range(elem_n[e]):
+                    t = C[f + k] - k * xp
+                    if t > m:
+                        m = t
+                s0 = 0.0
+                for k in range(elem_n[e]):
+                    s0 += math.exp(C[f + k] - k * xp - m)
+                norm[e] = m
+                norm_l[e] = math.log(s0)
+        out_moments[p, 0] = a
+        out_moments[p, 1] = b
+        out_moments[p, 2] = d
+        if want_frac:
+            for j in range(sel_stage.size):
+                s = sel_stage[j]
+                e = sel_e[j]
+                k = s - elem_first[e]
+                out_frac[p, j] = math.exp(C[s] - k * xp - norm[e] - norm_l[e])
+
+
+@pjit
+def tile_outputs_many_dlnu(T, x, sel_stage, mix, dl_stage, dl_val, out_frac, out_moments):
+    """:func:`tile_outputs_many` with additive ln U corrections (see :func:`solve_many_dlnu`)."""
     n = T.size
-    n_stage = stage_chi.size
-    n_t = lnU.shape[1]
+    ok = dlnu_check(mix.stage_chi.size, n, dl_stage, dl_val)
+    for j in range(sel_stage.size):
+        if sel_stage[j] < 0 or sel_stage[j] >= mix.stage_chi.size:
+            ok = False
+    if not ok:
+        out_frac[:, :] = np.nan
+        out_moments[:, :] = np.nan
+        return
     n_chunks = min(n, N_CHUNKS)
     for c in prange(n_chunks):
         start, stop = chunk_bounds(c, n, n_chunks)
-        C = np.empty(n_stage)
-        row = np.empty(n_stage)
-        i = 0
-        w = 0.0
-        base = 0.0
-        beta = 0.0
-        for p in range(start, stop):
-            ok = T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf
-            if ok:
-                i, w = table_position(T[p], lt0, dlt, n_t)
-                base, beta = saha_base(T[p])
-            for j in range(sel_elem.size):
-                e = sel_elem[j]
-                f = elem_first[e]
-                if ok:
-                    element_log_weights(e, base, beta, i, w, elem_first, elem_n, stage_chi, stage_row,
-                                        stage_lnu_const, lnU, C)
-                    element_log_fractions(C, f, elem_n[e], x[p], row)
-                    for k in range(elem_n[e]):
-                        out[p, f + k] = row[f + k]
-                else:
-                    for k in range(elem_n[e]):
-                        out[p, f + k] = np.nan
+        tile_chunk(T[start:stop], x[start:stop], sel_stage, mix, dl_stage, dl_val[start:stop],
+                   out_frac[start:stop], out_moments[start:stop], True)
+
+
+@pjit
+def tile_outputs_many(T, x, sel_stage, mix, out_frac, out_moments):
+    """One pass per point for a grid tile: fractions of the selected stages and the validity moments.
+
+    ``sel_stage`` (int64) lists flat stage indices of any elements;
+    ``out_frac[n_points, len(sel_stage)]`` gets their fractions (float64,
+    equal to ``exp`` of :func:`log_fractions_many`) and ``out_moments[n_points, 3]``
+    the moments of :func:`ion_moments_many`; NaN where ``x`` is not finite
+    (and everywhere for a stage index out of range).
+    """
+    n = T.size
+    dl_stage, dl_val = no_dlnu(n)
+    ok = True
+    for j in range(sel_stage.size):
+        if sel_stage[j] < 0 or sel_stage[j] >= mix.stage_chi.size:
+            ok = False
+    if not ok:
+        out_frac[:, :] = np.nan
+        out_moments[:, :] = np.nan
+        return
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        tile_chunk(T[start:stop], x[start:stop], sel_stage, mix, dl_stage, dl_val[start:stop],
+                   out_frac[start:stop], out_moments[start:stop], True)
+
+
+@pjit
+def ion_moments_many_dlnu(T, x, mix, dl_stage, dl_val, out):
+    """:func:`ion_moments_many` with additive ln U corrections (see :func:`solve_many_dlnu`)."""
+    n = T.size
+    if not dlnu_check(mix.stage_chi.size, n, dl_stage, dl_val):
+        out[:, :] = np.nan
+        return
+    sel = np.empty(0, dtype=np.int64)
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        tile_chunk(T[start:stop], x[start:stop], sel, mix, dl_stage, dl_val[start:stop],
+                   out[start:stop, :0], out[start:stop], False)
+
+
+@pjit
+def ion_moments_many(T, x, mix, out):
+    """Per nucleus at every point: ``sum f q^2``, ``sum_{q>0} f q^{5/3}`` and ``sum_{q>0} f``.
+
+    ``out`` has shape ``(n_points, 3)``; points with non-finite ``x`` get NaN.
+    Used by the validity flags (Debye length, Coulomb coupling).
+    """
+    n = T.size
+    dl_stage, dl_val = no_dlnu(n)
+    sel = np.empty(0, dtype=np.int64)
+    n_chunks = min(n, N_CHUNKS)
+    for c in prange(n_chunks):
+        start, stop = chunk_bounds(c, n, n_chunks)
+        tile_chunk(T[start:stop], x[start:stop], sel, mix, dl_stage, dl_val[start:stop],
+                   out[start:stop, :0], out[start:stop], False)
 
 
 @pjit
@@ -346,171 +598,3 @@ def charge_balance_many(T, x, mix, out_q, out_qneg):
                         qneg -= elem_w[e] * q * fr
             out_q[p] = qpos
             out_qneg[p] = qneg
-
-
-@pjit
-def ion_moments_many(T, x, mix, out):
-    """Per nucleus at every point: ``sum f q^2``, ``sum_{q>0} f q^{5/3}`` and ``sum_{q>0} f``.
-
-    ``out`` has shape ``(n_points, 3)``; points with non-finite ``x`` get NaN.
-    Used by the validity flags (Debye length, Coulomb coupling).
-    """
-    elem_w = mix.elem_w
-    elem_first = mix.elem_first
-    elem_n = mix.elem_n
-    elem_q0 = mix.elem_q0
-    stage_chi = mix.stage_chi
-    stage_row = mix.stage_row
-    stage_lnu_const = mix.stage_lnu_const
-    lnU = mix.lnU
-    lt0 = mix.lt0
-    dlt = mix.dlt
-    n = T.size
-    n_stage = stage_chi.size
-    n_chunks = min(n, N_CHUNKS)
-    for c in prange(n_chunks):
-        start, stop = chunk_bounds(c, n, n_chunks)
-        C = np.empty(n_stage)
-        for p in range(start, stop):
-            if not (T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf):
-                out[p, 0] = np.nan
-                out[p, 1] = np.nan
-                out[p, 2] = np.nan
-                continue
-            log_weights(T[p], elem_first, elem_n, stage_chi, stage_row, stage_lnu_const, lnU, lt0, dlt, C)
-            a = 0.0
-            b = 0.0
-            d = 0.0
-            for e in range(elem_w.size):
-                q2, q53, pos = element_charge_powers(C, elem_first[e], elem_n[e], elem_q0[e], x[p])
-                a += elem_w[e] * q2
-                b += elem_w[e] * q53
-                d += elem_w[e] * pos
-            out[p, 0] = a
-            out[p, 1] = b
-            out[p, 2] = d
-
-
-# --------------------------------------------------------------------------- ln U corrections (dense gas)
-# The hook for per-point additive corrections of ln U (occupation probabilities, Coulomb lowering;
-# see ionbal.dense).  ``dl_stage`` int64[k] lists flat stage indices, ``dl_val`` float64[n_points, k]
-# the corrections of ln U of those stages at each point (k may be 0).  A correction d of ln U_s adds d
-# to C[s] (C[s] - C[first] = ln(U_s / U_first) + ...), i.e. it changes the Saha ratios U_{s+1}/U_s and
-# U_s/U_{s-1}; each element's weights are then shifted back to C[first] = 0.
-
-
-@jit
-def apply_dlnu(C, p, dl_stage, dl_val, elem_first):
-    """Add the corrections of point ``p`` to the cumulative log weights ``C`` (renormalised per element)."""
-    k = dl_stage.size
-    if k == 0:
-        return
-    for j in range(k):
-        C[dl_stage[j]] += dl_val[p, j]
-    n_el = elem_first.size
-    for e in range(n_el):
-        f = elem_first[e]
-        c0 = C[f]
-        if c0 != 0.0:
-            stop = elem_first[e + 1] if e + 1 < n_el else C.size
-            for s in range(f, stop):
-                C[s] -= c0
-
-
-@jit
-def solve_few_dlnu(mode, T, value, x_guess, mix, dl_stage, dl_val, tol, max_iter, out_x, out_ln_nuc,
-                   out_iter, out_status):
-    """:func:`solve_few` with the ln U corrections ``dl_val`` (rows = the points of this call)."""
-    C = np.empty(mix.stage_chi.size)
-    kpk = np.empty(mix.elem_w.size, dtype=np.int64)
-    n_t = mix.lnU.shape[1]
-    for i in range(T.size):
-        Ti = T[i]
-        vi = value[i]
-        if not (Ti > 0.0 and Ti < np.inf and vi > 0.0 and vi < np.inf):
-            out_x[i], out_ln_nuc[i], out_iter[i], out_status[i] = np.nan, np.nan, 0, st.INVALID_INPUT
-            continue
-        lgT = math.log10(Ti)
-        if lgT < mix.lt0 - 1e-12 or lgT > mix.lt0 + (n_t - 1) * mix.dlt + 1e-12:
-            out_x[i], out_ln_nuc[i], out_iter[i], out_status[i] = np.nan, np.nan, 0, st.TEMPERATURE_OUT_OF_RANGE
-            continue
-        log_weights(Ti, mix.elem_first, mix.elem_n, mix.stage_chi, mix.stage_row, mix.stage_lnu_const,
-                    mix.lnU, mix.lt0, mix.dlt, C)
-        apply_dlnu(C, i, dl_stage, dl_val, mix.elem_first)
-        x, lnn, it, code = solve_from_weights(mode, Ti, vi, x_guess[i], C, kpk, mix, tol, max_iter)
-        out_x[i] = x
-        out_ln_nuc[i] = lnn
-        out_iter[i] = it
-        out_status[i] = code
-
-
-@pjit
-def solve_many_dlnu(mode, T, value, x_guess, mix, dl_stage, dl_val, tol, max_iter, out_x, out_ln_nuc,
-                    out_iter, out_status):
-    """:func:`solve_many` with per-point additive corrections ``dl_val`` of ln U of the stages ``dl_stage``."""
-    n = T.size
-    n_chunks = min(n, N_CHUNKS)
-    for c in prange(n_chunks):
-        start, stop = chunk_bounds(c, n, n_chunks)
-        solve_few_dlnu(mode, T[start:stop], value[start:stop], x_guess[start:stop], mix, dl_stage,
-                       dl_val[start:stop], tol, max_iter, out_x[start:stop], out_ln_nuc[start:stop],
-                       out_iter[start:stop], out_status[start:stop])
-
-
-@pjit
-def log_fractions_many_dlnu(T, x, sel_elem, mix, dl_stage, dl_val, out):
-    """:func:`log_fractions_many` with the ln U corrections (``out`` (n_points, n_stages), selected columns)."""
-    n = T.size
-    n_stage = mix.stage_chi.size
-    n_chunks = min(n, N_CHUNKS)
-    for c in prange(n_chunks):
-        start, stop = chunk_bounds(c, n, n_chunks)
-        C = np.empty(n_stage)
-        row = np.empty(n_stage)
-        for p in range(start, stop):
-            ok = T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf
-            if ok:
-                log_weights(T[p], mix.elem_first, mix.elem_n, mix.stage_chi, mix.stage_row, mix.stage_lnu_const,
-                            mix.lnU, mix.lt0, mix.dlt, C)
-                apply_dlnu(C, p, dl_stage, dl_val, mix.elem_first)
-            for j in range(sel_elem.size):
-                e = sel_elem[j]
-                f = mix.elem_first[e]
-                if ok:
-                    element_log_fractions(C, f, mix.elem_n[e], x[p], row)
-                    for k in range(mix.elem_n[e]):
-                        out[p, f + k] = row[f + k]
-                else:
-                    for k in range(mix.elem_n[e]):
-                        out[p, f + k] = np.nan
-
-
-@pjit
-def ion_moments_many_dlnu(T, x, mix, dl_stage, dl_val, out):
-    """:func:`ion_moments_many` with the ln U corrections."""
-    n = T.size
-    n_stage = mix.stage_chi.size
-    n_chunks = min(n, N_CHUNKS)
-    for c in prange(n_chunks):
-        start, stop = chunk_bounds(c, n, n_chunks)
-        C = np.empty(n_stage)
-        for p in range(start, stop):
-            if not (T[p] > 0.0 and T[p] < np.inf and x[p] == x[p] and abs(x[p]) < np.inf):
-                out[p, 0] = np.nan
-                out[p, 1] = np.nan
-                out[p, 2] = np.nan
-                continue
-            log_weights(T[p], mix.elem_first, mix.elem_n, mix.stage_chi, mix.stage_row, mix.stage_lnu_const,
-                        mix.lnU, mix.lt0, mix.dlt, C)
-            apply_dlnu(C, p, dl_stage, dl_val, mix.elem_first)
-            a = 0.0
-            b = 0.0
-            d = 0.0
-            for e in range(mix.elem_w.size):
-                q2, q53, pos = element_charge_powers(C, mix.elem_first[e], mix.elem_n[e], mix.elem_q0[e], x[p])
-                a += mix.elem_w[e] * q2
-                b += mix.elem_w[e] * q53
-                d += mix.elem_w[e] * pos
-            out[p, 0] = a
-            out[p, 1] = b
-            out[p, 2] = d

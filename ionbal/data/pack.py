@@ -14,7 +14,7 @@ from typing import Mapping
 
 import numpy as np
 
-from ..core.bundle import MixtureArrays
+from ..core.bundle import MixtureArrays, closed_form_fields
 from ..core.constants import AMU
 from .elements import atomic_mass
 from .mixture import Mixture
@@ -235,7 +235,9 @@ def pack(mixture: Mixture, overrides: tuple = ((), ()), h_minus: bool = True) ->
     )
     object.__setattr__(packed, "arrays", MixtureArrays(
         packed.elem_w, packed.elem_first, packed.elem_n, packed.elem_q0, packed.stage_chi, packed.stage_row,
-        packed.stage_lnu_const, packed.lnU, packed.lt0, packed.dlt, packed.q_max))
+        packed.stage_lnu_const, packed.lnU, packed.lt0, packed.dlt, packed.q_max,
+        *closed_form_fields(packed.elem_w, packed.elem_first, packed.elem_n, packed.elem_q0, packed.stage_chi,
+                            packed.stage_row, packed.stage_lnu_const)))
     packed._stage_index.update({sp: i for i, sp in enumerate(species)})
     packed._elem_index.update({int(z): e for e, z in enumerate(zs)})
     return packed
