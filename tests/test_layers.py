@@ -62,8 +62,9 @@ MAX_MODULE_LINES = 600
 def _py_files(root: Path):
     # an installed package also holds ionbal/tables/ (the generated data files and the script that
     # writes them, shipped as package data): that is not a layer of the code, so it is left out
+    tables = PKG / "tables"
     return sorted(p for p in root.rglob("*.py")
-                  if "__pycache__" not in p.parts and p.relative_to(PKG).parts[:1] != ("tables",))
+                  if "__pycache__" not in p.parts and not p.is_relative_to(tables))
 
 
 def _imports(path: Path):
