@@ -181,3 +181,89 @@ def test_damaged_grid_files_give_one_line(previous, capsys, how):
     with pytest.raises(ValueError):
         with open_grid(out) as g:
             g.interpolate("electron_density", temperature=5000.0, gas_pressure=1e3)
+
+
+# -- corrupt model files: read correctly or one line naming the problem -------------------------------------
+def _model_variants() -> dict[str, tuple[str, str | None]]:
+    """name -> (text, expected words of the error or None when the file must read like the original)."""
+    base = MODEL.read_text()
+    rows = [ln for ln in base.splitlines() if ln.strip() and not ln.startswith("#")]
+    hdr, data = rows[0], rows[1:]
+    t_value = data[0].split()[2]
+    return {
+        "byte-order mark": ("\ufeff" + base, None),
+        "CRLF line ends": (base.replace("\n", "\r\n"), None),
+        "tabs": ("\n".join("\t".join(ln.split()) for ln in rows) + "\n", None),
+        "duplicate column": ("\n".join(ln + " " + ln.split()[2] for ln in rows) + "\n", "appears twice"),
+        "NaN temperature": ("\n".join([hdr, data[0].replace(t_value, "nan", 1), *data[1:]]) + "\n", "nan"),
+        "empty": ("", "empty"),
+        "header only": (hdr + "\n", "no data rows"),
+        "NUL bytes": ("\x00\x01garbage", "not a text file"),
+        "ECSV with a wrong unit": ("# %ECSV 1.0\n# ---\n# datatype:\n"
+                                   "# - {name: temperature, unit: m, datatype: float64}\n"
+                                   "# - {name: gas_pressure, unit: dyn / cm2, datatype: float64}\n"
+                                   "temperature gas_pressure\n5000 1e4\n6000 1e5\n", "does not convert to K"),
+    }
+
+
+@pytest.mark.parametrize("case", list(_model_variants()))
+def test_damaged_model_files(tmp_path, monkeypatch, capsys, case):
+    monkeypatch.chdir(tmp_path)
+    text, expected = _model_variants()[case]
+    p = tmp_path / ("m.ecsv" if "ECSV" in case else "m.txt")
+    p.write_bytes(text.encode("utf-8"))
+    code = main(["column", str(p), "-o", "c.ecsv", "-q"])
+    if expected is None:
+        assert code == 0, capsys.readouterr().err
+        assert main(["column", str(MODEL), "-o", "ref.ecsv", "-q"]) == 0
+        body = [[ln for ln in f.read_text().splitlines() if not ln.startswith("#")]
+                for f in (tmp_path / "c.ecsv", tmp_path / "ref.ecsv")]
+        assert body[0] == body[1]  # the same numbers as the clean file
+    else:
+        assert expected in _one_line_error(capsys, code)
+        assert not (tmp_path / "c.ecsv").exists()
+
+
+# -- property-based fuzzing of the model reader and of the axis syntax ----------------------------------------
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as hs  # noqa: E402
+
+_FUZZ = settings(deadline=None, max_examples=150, suppress_health_check=[HealthCheck.function_scoped_fixture])
+_TOKENS = hs.sampled_from(["temperature", "gas_pressure", "T", "Pgas", "depth", "log_tau", "5000", "1e4", "-1",
+                           "nan", "inf", "0", "#", ",", "\t", " ", "\r\n", "\n", "\ufeff", "x", "1e400", "é"])
+
+
+@_FUZZ
+@given(text=hs.one_of(hs.text(max_size=300), hs.lists(_TOKENS, max_size=60).map("".join)))
+def test_fuzz_model_reader(tmp_path, text):
+    from ionbal.io import read_model
+
+    p = tmp_path / "fuzz.txt"
+    p.write_bytes(text.encode("utf-8", "surrogatepass"))
+    try:
+        t = read_model(p)
+    except ValueError as exc:  # the one allowed failure: a message naming the problem
+        assert str(exc) and "\n" not in str(exc).strip()
+        return
+    assert len(t)
+    for name in t.meta["ionbal_columns"]:  # every column read as a known quantity: numbers, never a silent NaN
+        v = np.asarray(t[name], dtype=float)
+        assert np.all(np.isfinite(v)), name
+
+
+@_FUZZ
+@given(text=hs.one_of(hs.text(max_size=40), hs.lists(hs.sampled_from(["1e3", "5000", "-2", ":", ",", "log",
+                                                                      "linear", "0", "nan", "3", "inf", " ",
+                                                                      "1e999", "2.5"]),
+                                                     max_size=9).map("".join)),
+       name=hs.sampled_from(["temperature", "gas_pressure", "metallicity"]))
+def test_fuzz_axis_syntax(text, name):
+    from ionbal.grid import Axis
+
+    try:
+        ax = Axis.parse(name, text)
+    except ValueError as exc:
+        assert name in str(exc) or "axis" in str(exc)
+        return
+    v = np.asarray(ax.array() if callable(getattr(ax, "array", None)) else ax.values, dtype=float)
+    assert len(v) >= 1 and np.all(np.isfinite(v)) and np.all(np.diff(v) > 0)
