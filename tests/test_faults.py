@@ -267,3 +267,17 @@ def test_fuzz_axis_syntax(text, name):
         return
     v = np.asarray(ax.array() if callable(getattr(ax, "array", None)) else ax.values, dtype=float)
     assert len(v) >= 1 and np.all(np.isfinite(v)) and np.all(np.diff(v) > 0)
+
+
+def test_a_reader_holding_the_file_open_during_overwrite(previous, capsys):
+    """The reader keeps reading the complete old file; the path gets the complete new one (POSIX rename)."""
+    out, before = previous
+    with open_grid(out) as g:
+        old_ne = g["electron_density"].copy()
+        assert main(["grid", *SMALL, "-T", "4000:8000:6", "-o", "r.h5", "--overwrite"]) == 0
+        assert g.shape[0] == 5  # still the old, complete file
+        g._cache.clear()  # read from the file again, not from memory
+        g.verify()  # every chunk of the old file still reads and checks
+        assert np.array_equal(g["electron_density"], old_ne, equal_nan=True)
+    with open_grid(out) as g:
+        assert g.shape[0] == 6
