@@ -23,7 +23,9 @@ import pytest
 from ionbal.grid import parts_dir_for
 from ionbal.io import is_grid_file
 
-pytestmark = pytest.mark.slow
+#: long campaigns of real processes (about 25 minutes with the default trial counts): run on demand
+#: with ``pytest -m faults`` (IONBAL_RACE_TRIALS / IONBAL_KILL_TRIALS set the counts), not by CI
+pytestmark = pytest.mark.faults
 
 #: the grid of the issue's measurement (201 x 161, 12 tiles) and a different, small one
 MEDIUM = ["-T", "3000:20000:201", "-P", "1e1:1e6:161", "--tile-size", "3000", "-q"]
