@@ -478,6 +478,256 @@ def build_abundances(src: Path, out: Path) -> None:
     _write(t, out / "abundances.ecsv")
 
 
+# --------------------------------------------------------------------------- molecules
+
+#: Temperature grid of the molecular equilibrium-constant table (the atomic grid up to 10^4 K).
+MOL_LOG10_T_END = 4.0
+MOL_N_T = int(round((MOL_LOG10_T_END - LOG10_T_START) / DLOG10_T)) + 1
+
+#: JANAF polyatomics taken into the chemistry (the diatomics come from Barklem & Collet 2016).
+JANAF_POLYATOMICS = ("H2O", "CO2", "HCN", "CH4", "NH3", "C2H2", "C2H", "C3", "H2S", "SO2", "SiH4", "SiO2",
+                     "TiO2", "VO2", "MgOH", "CaOH", "AlOH", "Al2O", "NaOH", "KOH", "HCO", "CH2", "CH3", "NH2")
+
+#: Boltzmann constant [eV/K] and [erg/K] (CODATA 2018), 1 eV in kJ/mol (CODATA 2018: N_A e / 1000).
+_K_B_EV = 8.617333262e-5
+_K_B_CGS = 1.380649e-16
+_EV_KJMOL = 96.48533212
+_LN10 = float(np.log(10.0))
+
+_FORMULA_TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")
+
+
+def _formula_composition(formula: str) -> tuple[tuple[tuple[int, int], ...], int]:
+    """``((Z, count), ...)`` sorted by Z, and the charge, of a formula such as ``H2O`` or ``CO+``."""
+    body, charge = formula, 0
+    if body.endswith("+"):
+        body, charge = body[:-1], 1
+    elif body.endswith("-"):
+        body, charge = body[:-1], -1
+    counts: dict[int, int] = {}
+    pos = 0
+    for m in _FORMULA_TOKEN.finditer(body):
+        if m.start() != pos:
+            raise ValueError(f"cannot parse formula {formula!r}")
+        z = SYMBOLS.index(m.group(1)) + 1
+        counts[z] = counts.get(z, 0) + (int(m.group(2)) if m.group(2) else 1)
+        pos = m.end()
+    if pos != len(body):
+        raise ValueError(f"cannot parse formula {formula!r}")
+    return tuple(sorted(counts.items())), charge
+
+
+def _component(label: str) -> tuple[int, int]:
+    """``(Z, charge)`` of a B&C reaction component such as ``C+``, ``H-`` or ``O``."""
+    comp, q = _formula_composition(label)
+    if len(comp) != 1 or comp[0][1] != 1:
+        raise ValueError(f"component {label!r} is not an atom or atomic ion")
+    return comp[0][0], q
+
+
+def _read_bc_table7(path: Path) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    lines = path.read_text().splitlines()
+    t = np.array([float(v) for v in lines[2].split()[2:]])
+    data = {}
+    for ln in lines[3:]:
+        parts = ln.split()
+        if len(parts) == t.size + 1:
+            data[parts[0]] = np.array([float(v) for v in parts[1:]])
+    return t, data
+
+
+def _read_bc_table1(path: Path) -> dict[str, tuple[str, str, float]]:
+    out = {}
+    for ln in path.read_text().splitlines()[4:]:
+        parts = ln.split()
+        if len(parts) >= 5:
+            out[parts[0]] = (parts[1], parts[2], float(parts[-2]))
+    return out
+
+
+def read_janaf(path: Path) -> dict[str, np.ndarray]:
+    """Columns ``T``, ``dfH`` (kJ/mol), ``logKf`` of a NIST-JANAF table (Chase 1998), finite rows only."""
+    rows = []
+    for ln in path.read_text().splitlines()[2:]:
+        parts = ln.split("\t")
+        if len(parts) < 8:
+            continue
+        try:
+            t, dfh, logkf = float(parts[0]), float(parts[5]), float(parts[7])
+        except ValueError:
+            continue
+        rows.append((t, dfh, logkf))
+    a = np.array(rows)
+    return {"T": a[:, 0], "dfH": a[:, 1], "logKf": a[:, 2]}
+
+
+def janaf_index(folder: Path) -> dict[str, Path]:
+    """Map formula (``H2O``, ``H+``, ``H2+``) -> JANAF file, from ``INDEX.tsv``."""
+    out = {}
+    for ln in (folder / "INDEX.tsv").read_text().splitlines()[1:]:
+        parts = ln.split("\t")
+        if len(parts) < 3:
+            continue
+        m = re.search(r"\(([^()]*)\)\s*$", parts[1])
+        if m:
+            out[m.group(1)] = folder / f"{parts[0]}.txt"
+    return out
+
+
+def janaf_dissociation(folder: Path, formula: str) -> tuple[np.ndarray, np.ndarray, float]:
+    """``(T, log10 Kp [bar^(n-1)], D0 [eV])`` of ``formula`` -> its neutral atoms from JANAF formation data.
+
+    ``log10 Kp = sum_i nu_i log10 Kf(atom_i) - log10 Kf(molecule)`` (Chase 1998: Kf is the formation
+    constant from the reference-state elements, so the reference states cancel), and ``D0`` follows
+    from the formation enthalpies at 0 K.  For an ion the charged atom (``H+``) is the charged component.
+    """
+    idx = janaf_index(folder)
+    comp, q = _formula_composition(formula)
+    mol = read_janaf(idx[formula])
+    T = mol["T"][mol["T"] > 0]
+    logk = -np.interp(T, mol["T"], mol["logKf"])
+    d0 = -mol["dfH"][mol["T"] == 0][0]
+    charged_done = q == 0
+    for z, n in comp:
+        sym = SYMBOLS[z - 1]
+        for _ in range(n):
+            name = sym
+            if not charged_done:
+                name, charged_done = sym + ("+" if q > 0 else "-"), True
+            atom = read_janaf(idx[name])
+            keep = np.isin(T, atom["T"])  # temperatures tabulated for both
+            T, logk = T[keep], logk[keep]
+            logk += np.interp(T, atom["T"], atom["logKf"])
+            d0 += atom["dfH"][0] if atom["T"][0] == 0 else np.nan  # (JANAF H+ has no 0 K row)
+    return T, logk, d0 / _EV_KJMOL
+
+
+def _reduced_on_grid(t_nodes, log10_kp_cgs, d0_ev, log10_t):
+    """Resample ``g = ln Kp + D0/kT`` (smooth in ln T) with a cubic spline; linear in ln T past the nodes.
+
+    Returns ``(g on the grid, dg/dlnT at the last node, last node T)``.
+    """
+    from scipy.interpolate import CubicSpline
+
+    ok = t_nodes >= 150.0
+    x = np.log(t_nodes[ok])
+    g = _LN10 * log10_kp_cgs[ok] + d0_ev / (_K_B_EV * t_nodes[ok])
+    spl = CubicSpline(x, g, bc_type="not-a-knot")
+    xg = log10_t * _LN10
+    out = spl(np.minimum(xg, x[-1]))
+    slope = float(spl(x[-1], 1))
+    beyond = xg > x[-1]
+    out[beyond] = g[-1] + slope * (xg[beyond] - x[-1])
+    return out, slope, float(t_nodes[ok][-1])
+
+
+def build_molecules(src: Path, out: Path) -> None:
+    """``molecules.ecsv`` (one row per molecule) and ``molecules_equilibrium.ecsv`` (log10 Kp on a T grid)."""
+    from astropy.table import Table
+
+    bc_dir = src / "molecules" / "diatomic-bc2016"
+    ja_dir = src / "molecules" / "janaf"
+    log10_t = np.round(LOG10_T_START + DLOG10_T * np.arange(MOL_N_T), 6)
+    t_bc, k_bc = _read_bc_table7(bc_dir / "table7_vNov2022.dat")
+    d0_bc = _read_bc_table1(bc_dir / "table1.dat")
+
+    rows = []
+    columns = {}
+    skipped = []
+    for name, lk in k_bc.items():
+        c1, c2, d0 = d0_bc[name]
+        comp, q = _formula_composition(name)
+        if "D" in (c1, c2) or "T" in (c1, c2):
+            skipped.append(name)
+            continue
+        (z1, q1), (z2, q2) = _component(c1), _component(c2)
+        charged = [(z, qq) for z, qq in ((z1, q1), (z2, q2)) if qq != 0]
+        if charged and charged[0][1] < 0 and charged[0][0] != 1:
+            # the reaction needs an atomic anion (C-, O-, Si-, S-) that the atomic data do not carry
+            skipped.append(f"{name} ({c1} + {c2})")
+            continue
+        if len(charged) > 1 or sum(qq for _, qq in charged) != q:
+            raise ValueError(f"B&C reaction of {name} ({c1} + {c2}) does not conserve charge")
+        # log10 pK [Pa] -> [dyn cm^-2]: 1 Pa = 10 dyn cm^-2, one pressure unit for a two-body reaction
+        g, slope, tmax = _reduced_on_grid(t_bc, lk + 1.0, d0, log10_t)
+        columns[name] = (g - d0 / (_K_B_EV * 10.0**log10_t)) / _LN10
+        rows.append(dict(molecule=name, charge=q, composition=" ".join(f"{z}:{n}" for z, n in comp),
+                         n_atoms=sum(n for _, n in comp), reaction=f"{c1} + {c2}",
+                         ion_Z=charged[0][0] if charged else 0, ion_charge=charged[0][1] if charged else 0,
+                         D0=d0, T_source_max=tmax, extension_slope=slope, source="BC2016"))
+    for name in JANAF_POLYATOMICS:
+        T, logk_bar, d0 = janaf_dissociation(ja_dir, name)
+        comp, q = _formula_composition(name)
+        n = sum(c for _, c in comp)
+        # bar^(n-1) -> (dyn cm^-2)^(n-1): 1 bar = 1e6 dyn cm^-2
+        g, slope, tmax = _reduced_on_grid(T, logk_bar + 6.0 * (n - 1), d0, log10_t)
+        columns[name] = (g - d0 / (_K_B_EV * 10.0**log10_t)) / _LN10
+        atoms = " + ".join(f"{c} {SYMBOLS[z - 1]}" if c > 1 else SYMBOLS[z - 1] for z, c in comp)
+        rows.append(dict(molecule=name, charge=q, composition=" ".join(f"{z}:{c}" for z, c in comp),
+                         n_atoms=n, reaction=atoms, ion_Z=0, ion_charge=0, D0=d0, T_source_max=tmax,
+                         extension_slope=slope, source="JANAF"))
+
+    t = Table(rows=rows, names=list(rows[0]))
+    t["D0"].unit = "eV"
+    t["T_source_max"].unit = "K"
+    descr = {
+        "molecule": "chemical formula (label)",
+        "charge": "net charge of the molecule",
+        "composition": "Z:count of every element, sorted by Z",
+        "n_atoms": "number of atoms",
+        "reaction": "dissociation products the constant refers to (B&C 2016: the two components of table1)",
+        "ion_Z": "Z of the charged product (0: all products neutral)",
+        "ion_charge": "charge of that product (+1, or -1 for H-)",
+        "D0": "dissociation energy at 0 K into the products [eV] (B&C table1 adopted; JANAF: from dfH(0 K))",
+        "T_source_max": "highest temperature of the source table [K]",
+        "extension_slope": "d(ln Kp + D0/kT)/d ln T at the highest source temperature (used beyond it)",
+        "source": "BC2016 = Barklem & Collet 2016 table 7; JANAF = Chase 1998",
+    }
+    for k, v in descr.items():
+        t[k].description = v
+    t.meta["title"] = "ionbal molecules: species, dissociation reactions and energies"
+    t.meta["source"] = [
+        "Barklem P. S. & Collet R. 2016, A&A 588, A96, tables 1 and 7 (table7_vNov2022: Nov 2022 corrections)",
+        "Chase M. W. 1998, NIST-JANAF Thermochemical Tables, 4th ed., J. Phys. Chem. Ref. Data Monograph 9",
+    ]
+    t.meta["processing"] = [
+        "Every diatomic of B&C table 7 (291) except: "
+        + ", ".join(skipped) + " (their reaction needs an atomic anion other than H-, which ionbal "
+        "does not carry, or an isotope).",
+        "JANAF polyatomics: log10 Kp = sum_i log10 Kf(atom_i) - log10 Kf(molecule), D0 = sum_i dfH0(atom_i) "
+        "- dfH0(molecule) at 0 K.",
+        "See molecules_equilibrium.ecsv for the resampling and the extension past the source tables.",
+    ]
+    t.meta["generated_by"] = "tables/build_tables.py"
+    _write(t, out / "molecules.ecsv")
+
+    k = Table()
+    k["log10_T"] = log10_t
+    k["log10_T"].description = "log10 of the temperature in K"
+    for r in rows:
+        k[r["molecule"]] = np.round(columns[r["molecule"]], 6)
+        k[r["molecule"]].description = f"log10 Kp, {r['molecule']} -> {r['reaction']}"
+    k.meta["title"] = "ionbal molecular dissociation constants log10 Kp (cgs)"
+    k.meta["quantity"] = (
+        "log10 Kp with Kp = prod_i p_i / p_molecule in (dyn cm^-2)^(n_atoms - 1), p = n k T; "
+        "the products are the reaction column of molecules.ecsv"
+    )
+    k.meta["grid"] = {"log10_T_start": LOG10_T_START, "dlog10_T": DLOG10_T, "n": int(MOL_N_T)}
+    k.meta["source"] = t.meta["source"]
+    k.meta["processing"] = [
+        "B&C 2016: log10 pK [Pa] + 1 (1 Pa = 10 dyn cm^-2). JANAF: log10 Kp [bar^(n-1)] + 6 (n - 1).",
+        "Resampling: g = ln Kp + D0/kT, which is smooth in ln T, is interpolated with a not-a-knot cubic "
+        "spline in ln T through the source nodes at T >= 150 K (B&C: 42 nodes to 10,000 K; JANAF: 100 K "
+        "steps to 6,000 K).",
+        "Past the last source temperature T1 (6,000 K for JANAF, 10,000 K for B&C) g is continued linearly "
+        "in ln T with its slope at T1 (extension_slope of molecules.ecsv): ln Kp(T) = g(T1) + "
+        "s ln(T/T1) - D0/kT, so value and slope are continuous and Kp grows towards the dissociation "
+        "limit. ionbal continues it the same way past 10,000 K.",
+    ]
+    k.meta["generated_by"] = "tables/build_tables.py"
+    _write(k, out / "molecules_equilibrium.ecsv")
+
+
 # --------------------------------------------------------------------------- main
 
 def main(argv: list[str] | None = None) -> int:
@@ -494,6 +744,10 @@ def main(argv: list[str] | None = None) -> int:
     ie = build_ionization_energies(src, args.out)
     build_partition_functions(src, args.out, ie)
     build_abundances(src, args.out)
+    if (src / "molecules").is_dir():
+        build_molecules(src, args.out)
+    else:
+        print(f"{src / 'molecules'} not found: molecular tables not rebuilt")
     return 0
 
 
