@@ -8,7 +8,8 @@
 Prints one table (figure, value, target, verdict) and optionally writes the
 same figures, the machine and the settings as JSON.  See benchmarks/README.md
 for what each figure means.  Timings are medians over repeats: the machine may
-be shared.
+be shared.  These are the figures of the atoms-only solve (``molecules=False``,
+``--no-molecules``); the joint molecular solve is timed by benchmarks/molecules.py.
 """
 
 from __future__ import annotations
@@ -220,7 +221,7 @@ def bench_throughput_and_floors(rep: Report, sz, sets):
     for key, label, T, P, mixture in sets:
         packed = pack(mixture)
         # warm-up: compile (or load from cache) and pack, outside the timings
-        r0 = ionbal.solve(T[:64], gas_pressure=P[:64], mixture=mixture)
+        r0 = ionbal.solve(T[:64], gas_pressure=P[:64], mixture=mixture, molecules=False)
         floors.full_floor(T[:64], np.log(r0.electron_density).ravel(), packed)
         floors.lean_floor(T[:64], np.log(r0.electron_density).ravel(), packed)
 
@@ -234,7 +235,7 @@ def bench_throughput_and_floors(rep: Report, sz, sets):
         cpu = {"solve": [], "full": [], "lean": []}
 
         def solve_run():
-            res["r"] = ionbal.solve(T, gas_pressure=P, mixture=mixture)
+            res["r"] = ionbal.solve(T, gas_pressure=P, mixture=mixture, molecules=False)
             if "x" not in res:
                 res["x"] = np.ascontiguousarray(np.log(res["r"].electron_density), dtype=np.float64).ravel()
 
@@ -295,11 +296,11 @@ def bench_baseline(rep: Report, sz, throughput):
     t0 = time.perf_counter()
     x_base = solver.solve(T, P)
     t_base = time.perf_counter() - t0
-    ionbal.solve(T, gas_pressure=P, mixture=mixture)  # warm
+    ionbal.solve(T, gas_pressure=P, mixture=mixture, molecules=False)  # warm
     res = {}
 
     def run():
-        res["r"] = ionbal.solve(T, gas_pressure=P, mixture=mixture)
+        res["r"] = ionbal.solve(T, gas_pressure=P, mixture=mixture, molecules=False)
 
     t_same, _ = timed(run, max(5, sz["repeats"]))
     x_ib = np.log(res["r"].electron_density)
@@ -332,7 +333,7 @@ def bench_scaling(rep: Report, sz):
     n = sz["n_scaling"]
     T, P = random_states(n, seed=2)
     mixture = mixtures()["AGSS09"]
-    ionbal.solve(T[:64], gas_pressure=P[:64], mixture=mixture)
+    ionbal.solve(T[:64], gas_pressure=P[:64], mixture=mixture, molecules=False)
     before = numba.get_num_threads()
     times = {1: [], 2: []}
     cpus = {1: [], 2: []}
@@ -342,7 +343,7 @@ def bench_scaling(rep: Report, sz):
             for k in (1, 2):  # interleaved, so a burst of outside load hits both
                 numba.set_num_threads(k)
                 t0, c0 = time.perf_counter(), time.process_time()
-                ionbal.solve(T, gas_pressure=P, mixture=mixture)
+                ionbal.solve(T, gas_pressure=P, mixture=mixture, molecules=False)
                 times[k].append(time.perf_counter() - t0)
                 cpus[k].append(time.process_time() - c0)
     finally:
@@ -424,7 +425,7 @@ def bench_memory(rep: Report, sz):
         for scale, (a, b) in (("1x", (nt, np_)), ("4x", (2 * nt, 2 * np_))):
             out = Path(tmp) / f"grid-{scale}.h5"
             cmd = base + ["grid", "-T", f"{GRID_T[0]:g}:{GRID_T[1]:g}:{a}", "-P", f"{GRID_P[0]:g}:{GRID_P[1]:g}:{b}",
-                          "-o", str(out), "--overwrite", "-q"]
+                          "-o", str(out), "--overwrite", "-q", "--no-molecules"]
             log(f"memory: ionbal grid {a}x{b}")
             rss, secs = _peak_rss_of(cmd)
             figures[scale] = (rss, secs, a * b)

@@ -62,10 +62,14 @@ class Problem:
     value: np.ndarray
     mixture: object = None
     notes: str = field(default="")
+    #: the catalogue's problems are those of the atoms-only solve (its reference solvers and
+    #: benchmarks); pass molecules=True to solve them with molecules
+    molecules: object = False
 
     def solve(self, **kwargs):
         from .api import solve
 
+        kwargs.setdefault("molecules", self.molecules)
         return solve(self.temperature, mixture=self.mixture, **{self.state_variable: self.value}, **kwargs)
 
 
@@ -77,7 +81,7 @@ def random_states(n: int, seed: int = 0, t_range=T_RANGE, p_range=P_GAS_RANGE):
     return T, P
 
 
-def matching_states(n: int, state_variable: str, mixture=None, seed: int = 0):
+def matching_states(n: int, state_variable: str, mixture=None, seed: int = 0, molecules=False):
     """States for ``state_variable`` over the range matching the gas-pressure domain.
 
     Log-uniform (T, P_gas) states are solved with the gas-pressure input and
@@ -88,11 +92,12 @@ def matching_states(n: int, state_variable: str, mixture=None, seed: int = 0):
 
     T, P = random_states(n, seed)
     if state_variable == "gas_pressure":
-        return Problem(f"random {state_variable}", T, state_variable, P, mixture)
+        return Problem(f"random {state_variable}", T, state_variable, P, mixture, molecules=molecules)
     if state_variable not in STATE_VARIABLES:
         raise ValueError(f"unknown state variable {state_variable!r}; use one of {STATE_VARIABLES}")
-    base = solve(T, gas_pressure=P, mixture=mixture)
-    return Problem(f"random {state_variable}", T, state_variable, getattr(base, state_variable), mixture)
+    base = solve(T, gas_pressure=P, mixture=mixture, molecules=molecules)
+    return Problem(f"random {state_variable}", T, state_variable, getattr(base, state_variable), mixture,
+                   molecules=molecules)
 
 
 def structured_grid(n_t: int = 301, n_p: int = 241, t_range=(2.0e3, 5.0e4), p_range=(1.0e-4, 1.0e8)):

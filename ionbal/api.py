@@ -18,7 +18,9 @@ from .core.solver import (
     solve_few,
     solve_many,
 )
+from .chemistry import solve_chemistry
 from .data.mixture import Mixture
+from .data.molecules import Molecule, molecule_table, pack_molecules, parse_molecule
 from .data.pack import freeze_overrides, pack
 from .quantities import QUANTITIES, STATE_INPUTS
 from .result import IonizationResult
@@ -75,7 +77,7 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
           mixture: Mixture | None = None, partition_functions: Mapping | None = None,
           ionization_energies: Mapping | None = None, h_minus: bool = True, tol: float = TOL,
           max_iterations: int = MAX_ITER, errors: str = "raise", initial_electron_density=None,
-          units: bool | None = None) -> IonizationResult:
+          units: bool | None = None, molecules=False) -> IonizationResult:
     """Solve the LTE ionization balance of a mixture at given temperature and one more state variable.
 
     For every element of the mixture the Saha equation links each pair of
@@ -85,10 +87,21 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
     conservation of nuclei per element and the ideal-gas law close the system,
     which is solved for the free-electron density at every point.
 
+    With ``molecules`` the gas-phase molecules of ionbal's
+    tables whose atoms are all in the mixture (diatomics and their ions from
+    Barklem & Collet 2016, A&A 588, A96; polyatomics from the NIST-JANAF
+    tables, Chase 1998) are solved together with the ions: every element's
+    nuclei are then shared between its free atomic stages and the molecules
+    that hold it (:meth:`IonizationResult.element_budget`), and the gas
+    pressure and mean molecular weight count each molecule as one particle.
+    Above the tables' upper temperature (6,000 K for Barklem & Collet,
+    JANAF's own limit) ln K is continued with value and slope continuous.
+
     Assumptions: local thermodynamic equilibrium; ideal, non-degenerate gas
     (no Coulomb corrections, no pressure ionization, partition functions from
-    a fixed level list); atoms and atomic ions only (no molecules).  These
-    fail in chromospheres and low-density hot winds (non-LTE), and in dense,
+    a fixed level list); gas phase only (no condensation or dust, which
+    matter below about 2,000 K at high pressure).  These fail in
+    chromospheres and low-density hot winds (non-LTE), and in dense,
     degenerate interiors (non-ideal gas).
 
     Parameters
@@ -126,6 +139,13 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
         Return astropy Quantities (cgs) for the dimensional outputs of the result.
         Default: yes when the temperature or the state variable was given as a
         Quantity, plain arrays for plain numbers.
+    molecules : bool or list of str
+        True: every tabulated molecule whose atoms are in the mixture;
+        False (default for now; issue 10 makes True the default once the
+        atoms-only tests are pinned): atoms and atomic ions only (the
+        atoms-only solve, bit for bit); a list of formulas (``["CO", "H2O", "H2+"]``) picks
+        those.  With molecules, ``initial_electron_density`` is not used
+        (the joint solve starts from the atoms-only solution).
 
     Returns
     -------
@@ -158,7 +178,13 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
             raise ValueError(f"{arg} must be a mapping of species to values, e.g. {{'H I': 2.0}}; "
                              f"got {type(over).__name__}")
 
+    molecules = _check_molecules(molecules)
     packed = pack(mixture, freeze_overrides(partition_functions, ionization_energies), bool(h_minus))
+    if molecules is True and not h_minus:
+        molecules = _without_h_minus_molecules(packed)  # those that form from H- need it switched on
+    mol_pack = pack_molecules(packed, molecules) if molecules is not False else None
+    if mol_pack is not None and not mol_pack.molecules:
+        mol_pack = None  # no molecule can form from this mixture: the atoms-only solve is the answer
 
     T = as_cgs_array(temperature, QUANTITIES["temperature"].unit, "temperature")
     value = as_cgs_array(raw, QUANTITIES[var].unit, var)
@@ -220,12 +246,21 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
         with np.errstate(divide="ignore", invalid="ignore"):
             gf = np.log(np.ascontiguousarray(arrays[2], dtype=np.float64).ravel())
     n = Tf.size
-    x = np.empty(n)
-    lnn = np.empty(n)
-    it = np.empty(n, dtype=np.int32)
-    code = np.empty(n, dtype=np.int8)
-    driver = solve_few if n <= SERIAL_POINTS else solve_many
-    driver(mode, Tf, vf, gf, packed.arrays, float(tol), int(max_iterations), x, lnn, it, code)
+    chemistry = None
+    if mol_pack is None:
+        x = np.empty(n)
+        lnn = np.empty(n)
+        it = np.empty(n, dtype=np.int32)
+        code = np.empty(n, dtype=np.int8)
+        driver = solve_few if n <= SERIAL_POINTS else solve_many
+        driver(mode, Tf, vf, gf, packed.arrays, float(tol), int(max_iterations), x, lnn, it, code)
+    else:
+        chemistry = solve_chemistry(packed, Tf, state=_CHEMISTRY_STATE[mode], value=vf, molecules=molecules,
+                                    tol=float(tol), max_iter=int(max_iterations), parallel=n > SERIAL_POINTS)
+        x = chemistry.ln_electron_density
+        lnn = chemistry.ln_nuclei_density
+        it = chemistry.iterations.astype(np.int32)
+        code = chemistry.status.astype(np.int8)
 
     if errors == "raise":
         bad = (code != st.OK) & (code != st.NO_SOLUTION) & (code != st.MAX_ITERATIONS)
@@ -248,4 +283,40 @@ def solve(temperature, *, gas_pressure=None, mass_density=None, hydrogen_density
     failed = code != st.OK
     x = np.where(failed & (code != st.MAX_ITERATIONS), np.nan, x)
     lnn = np.where(failed & (code != st.MAX_ITERATIONS), np.nan, lnn)
-    return IonizationResult(packed, shape, Tf, x, lnn, it.reshape(-1), code, var, units=bool(units))
+    return IonizationResult(packed, shape, Tf, x, lnn, it.reshape(-1), code, var, units=bool(units),
+                            chemistry=chemistry)
+
+
+#: kernel mode of the atoms-only table above -> the state input of :func:`ionbal.chemistry.solve_chemistry`
+_CHEMISTRY_STATE = {MODE_GAS_PRESSURE: "gas_pressure", MODE_ELECTRON_PRESSURE: "electron_pressure",
+                    MODE_NUCLEI_DENSITY: "nuclei_density"}
+
+
+def _without_h_minus_molecules(packed):
+    """Every tabulated molecule the mixture can form except those whose reaction has H- (or False)."""
+    tab = molecule_table()
+    present = {int(z) for z in packed.atomic_numbers}
+    chosen = tuple(str(m) for m, q in zip(tab.molecules, tab.ion_q)
+                   if q >= 0 and all(z in present for z, _ in m.composition))
+    return chosen or False
+
+
+def _check_molecules(molecules):
+    """``molecules`` as :func:`pack_molecules` takes it: True, False or a tuple of formulas."""
+    if isinstance(molecules, (bool, np.bool_)):
+        return bool(molecules)
+    if isinstance(molecules, str):
+        molecules = [m for m in molecules.split(",") if m.strip()] if "," in molecules else [molecules]
+    try:
+        items = list(molecules)
+    except TypeError:
+        raise ValueError(f"molecules must be True, False or a list of formulas such as ['CO', 'H2O']; "
+                         f"got {molecules!r}") from None
+    chosen = []
+    for item in items:
+        if not isinstance(item, (str, Molecule)):
+            raise ValueError(f"molecules: every item must be a formula string such as 'CO'; got {item!r}")
+        chosen.append(parse_molecule(item.strip() if isinstance(item, str) else item))
+    if not chosen:
+        raise ValueError("molecules is an empty list; pass molecules=False for atoms and atomic ions only")
+    return tuple(str(m) for m in chosen)

@@ -76,6 +76,32 @@ def mixture_from_args(args: argparse.Namespace):
     return mix
 
 
+def add_molecule_options(parser: argparse.ArgumentParser) -> None:
+    """Options that choose the molecules solved with the ions."""
+    g = parser.add_argument_group("molecules")
+    g.add_argument("--no-molecules", action="store_true",
+                   help="atoms and atomic ions only (the default for now)")
+    g.add_argument("--molecules", default=None, metavar="LIST",
+                   help="solve molecules with the ions: 'all' (every tabulated molecule the mixture can form) "
+                        "or a list of formulas, e.g. CO,H2O,H2,H2+")
+
+
+def molecules_from_args(args: argparse.Namespace):
+    """``molecules=`` of :func:`ionbal.solve` from the options: True, False or a tuple of formulas."""
+    if args.no_molecules and args.molecules is not None:
+        raise CLIError("give either --no-molecules or --molecules LIST, not both")
+    if args.no_molecules:
+        return False
+    if args.molecules is None:
+        return False  # the default of ionbal.solve, for now
+    if args.molecules.strip().lower() == "all":
+        return True
+    names = tuple(m.strip() for m in args.molecules.split(",") if m.strip())
+    if not names:
+        raise CLIError("--molecules is empty; give formulas such as CO,H2O (or --no-molecules)")
+    return names
+
+
 #: (name, flag, short flag, help) of every state input, from the quantity registry
 STATE_OPTIONS = tuple((n, QUANTITIES[n].flag, QUANTITIES[n].short_flag, QUANTITIES[n].help) for n in STATE_INPUTS)
 
@@ -109,8 +135,8 @@ def _cmd_state(args: argparse.Namespace) -> int:
             raise CLIError(f"output {args.output}: ionbal state writes .ecsv, .csv or .txt tables; "
                            "for HDF5 use ionbal grid")
         check_output_path(args.output, overwrite=args.overwrite)
-    _compile_note()
-    result = solve(args.temperature, mixture=mix, **given)
+    _compile_note(args)
+    result = solve(args.temperature, mixture=mix, molecules=molecules_from_args(args), **given)
     if args.json:
         import json
 
@@ -153,6 +179,10 @@ def _compile_note(args: argparse.Namespace | None = None, *, points: int = 1) ->
     from .core.solver import ion_moments_many, log_fractions_many, solve_few, solve_many
 
     driver = solve_few if points <= SERIAL_POINTS else solve_many
+    if args is None or molecules_from_args(args) is not False:  # the joint kernel holds its own solve_few
+        from .core.chem import chem_solve_few, chem_solve_many
+
+        driver = chem_solve_few if points <= SERIAL_POINTS else chem_solve_many
     if needs_compiling(driver, log_fractions_many, ion_moments_many):
         print("ionbal: compiling kernels (first run only; about half a minute, cached afterwards)",
               file=sys.stderr, flush=True)
@@ -204,7 +234,7 @@ def grid_spec_from_args(args: argparse.Namespace):
         mixture = mixture_from_args(args)
         return GridSpec(temperature, state, mixture, species=_species_arg(args),
                         number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
-                        validity=not args.no_validity)
+                        validity=not args.no_validity, molecules=molecules_from_args(args))
     if m_axis is not None and args.metallicity:
         raise CLIError("give [M/H] either as --metallicity or as --metallicity-axis, not both")
     if a_axis is not None and args.alpha:
@@ -216,7 +246,7 @@ def grid_spec_from_args(args: argparse.Namespace):
     return GridSpec(temperature, state, base, metallicity=metallicity, alpha=alpha,
                     overrides=_parse_overrides(args.abundance), species=_species_arg(args),
                     number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
-                    validity=not args.no_validity)
+                    validity=not args.no_validity, molecules=molecules_from_args(args))
 
 
 def _species_arg(args: argparse.Namespace):
@@ -288,12 +318,12 @@ def _cmd_column(args: argparse.Namespace) -> int:
     table = read_model(args.model, columns=args.columns)
     _compile_note(args, points=len(table))
     result = solve_column(table, mixture=mixture, species=_species_arg(args), state=args.state,
-                          partial_pressures=args.partial_pressures,
+                          partial_pressures=args.partial_pressures, molecules=molecules_from_args(args),
                           progress=False if args.quiet else None)
     written = [write_column(result, out, overwrite=args.overwrite, command=_command_line()) for out in outputs]
     n = len(result.table)
     print(f"ionbal column: {args.model}: {n} depth points, state input {result.state_variable}, mixture "
-          f"{result.mixture_name}, {len(result.species)} species")
+          f"{result.mixture_name}, {len(result.species)} species, {len(result.molecules)} molecules")
     print(cli_wording("\n".join(result.input_lines())))
     for path in written:
         print(f"  wrote {path}")
@@ -328,6 +358,7 @@ def _add_grid_command(sub) -> None:
         ax.add_argument(short, flag, dest=name, default=None, metavar="AXIS",
                         help=f"state axis: {helptext}{extra}")
     add_mixture_options(p)
+    add_molecule_options(p)
     comp = p.add_argument_group("composition axes (one file, several mixtures)")
     comp.add_argument("--metallicity-axis", default=None, metavar="LIST",
                       help="[M/H] values, e.g. -2,-1,0 or -2:0:5 (linear); scales the abundance set")
@@ -408,6 +439,7 @@ def _add_column_command(sub) -> None:
     p.add_argument("--partial-pressures", action="store_true",
                    help="also write the partial pressure n k T of every species (partial_pressure_Fe_II, ...)")
     add_mixture_options(p)
+    add_molecule_options(p)
     p.add_argument("--overwrite", action="store_true", help="replace existing output files")
     p.add_argument("-q", "--quiet", action="store_true", help="print only the summary, not every depth point")
     p.set_defaults(func=_cmd_column)
@@ -441,6 +473,7 @@ def build_parser() -> argparse.ArgumentParser:
     for name, flag, short, helptext in STATE_OPTIONS:
         p.add_argument(short, flag, dest=name, type=float, default=None, help=helptext)
     add_mixture_options(p)
+    add_molecule_options(p)
     out = p.add_argument_group("output")
     out.add_argument("--elements", default=None, metavar="EL,EL,...", help="show only these elements")
     out.add_argument("--min-fraction", type=float, default=1e-4,

@@ -142,6 +142,8 @@ class ColumnResult:
     notes: tuple = ()
     #: name of the temperature column in :attr:`table`
     temperature_column: str = "temperature"
+    #: molecules whose number densities are columns of :attr:`table` (``number_density_CO``)
+    molecules: tuple = ()
 
     def input_lines(self) -> list[str]:
         """Which columns were read as what: the state input, the compared columns, the rest."""
@@ -193,7 +195,7 @@ def _where(table, i: int) -> str:
 CHUNK_POINTS = 20_000
 
 
-def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress) -> dict:
+def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress, molecules=True) -> dict:
     """Solve the depth points in chunks: the per-point outputs, status, iterations, validity bitmask,
     fractions and number densities of the species, as plain arrays over all points."""
     from .api import solve
@@ -207,25 +209,31 @@ def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress) -> dict:
     got["validity"] = np.empty(n, dtype=np.uint8)
     got["fractions"] = np.empty((len(sp_names), n))
     got["number_densities"] = np.empty((len(sp_names), n))
+    got["molecules"] = ()
     bar = Progress(n, enabled=False if (progress is False or n <= CHUNK_POINTS) else progress,
                    label="ionbal column")
     try:
         for a in range(0, n, CHUNK_POINTS):
             b = min(n, a + CHUNK_POINTS)
-            r = solve(T[a:b], mixture=mix, errors="mask", units=False, **{sv: X[a:b]})
+            r = solve(T[a:b], mixture=mix, errors="mask", units=False, molecules=molecules, **{sv: X[a:b]})
+            if a == 0:
+                got["molecules"] = r.molecules
+                got["molecule_densities"] = np.empty((len(r.molecules), n))
             status = np.asarray(r.status)
             if (status != 0).any():
                 i = int(np.flatnonzero(status != 0)[0])
                 raise ValueError(f"no converged solution at {where(a + i)} (T={T[a + i]:g} K, {sv}="
                                  f"{X[a + i]:g}): {r.message[i]}")
             for name in got:
-                if name in QUANTITIES and QUANTITIES[name].compute is not None:
+                if name != "molecules" and name in QUANTITIES and QUANTITIES[name].compute is not None:
                     got[name][a:b] = r[name]
             got["status"][a:b] = status
             got["iterations"][a:b] = r.iterations
             got["validity"][a:b] = bitmask(r.validity)
             got["fractions"][:, a:b] = r.species_fractions(sp_names)
             got["number_densities"][:, a:b] = r.number_densities(sp_names, fractions=got["fractions"][:, a:b])
+            if r.molecules:
+                got["molecule_densities"][:, a:b] = r.molecule_densities()
             bar.update(b - a)
     finally:
         bar.close()
@@ -233,7 +241,7 @@ def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress) -> dict:
 
 
 def solve_column(table, *, mixture=None, species="default", state: str | None = None, columns=None,
-                 partial_pressures: bool = False, progress: bool | None = False) -> ColumnResult:
+                 partial_pressures: bool = False, molecules=False, progress: bool | None = False) -> ColumnResult:
     """Solve the ionization balance at every depth point of a model table.
 
     Parameters
@@ -253,6 +261,10 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         registry names nor their aliases (:data:`ionbal.io.models.ALIASES`).
     partial_pressures : bool
         Also write the partial pressure of every species (``partial_pressure_Fe_II``).
+    molecules : bool or list of formulas
+        As in :func:`ionbal.solve` (default False); the number density of every molecule of the
+        solve is written as a column (``number_density_CO``, and ``partial_pressure_CO`` with
+        ``partial_pressures``).
     progress : bool or None
         Progress on stderr for models longer than :data:`CHUNK_POINTS` (solved chunk by
         chunk): ``None`` a bar on a terminal and periodic lines elsewhere, ``False`` (default) none.
@@ -310,7 +322,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
                          f"tables ({t_lo:.4g}-{t_hi:.4g} K)")
     sp_names = resolve_species(mix, species)
     outputs = [name for name in POINT_OUTPUTS if name != sv]
-    got = _solve_rows(T, X, sv, mix, sp_names, outputs, lambda i: _where(table, i), progress)
+    got = _solve_rows(T, X, sv, mix, sp_names, outputs, lambda i: _where(table, i), progress, molecules)
     status = got["status"]
 
     res = Table(meta={k: v for k, v in table.meta.items() if k != "line_numbers"})
@@ -358,6 +370,15 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         for k, name in enumerate(sp_names):
             res[species_column_name("partial_pressure", name)] = dens[k] * kT
             res[species_column_name("partial_pressure", name)].unit = astropy_unit("partial_pressure")
+    mols = tuple(got["molecules"])
+    for k, name in enumerate(mols):
+        res[species_column_name("number_density", name)] = got["molecule_densities"][k]
+        res[species_column_name("number_density", name)].unit = astropy_unit("number_density")
+    if partial_pressures:
+        for k, name in enumerate(mols):
+            res[species_column_name("partial_pressure", name)] = got["molecule_densities"][k] * K_B * T
+            res[species_column_name("partial_pressure", name)].unit = astropy_unit("partial_pressure")
+    res.meta["ionbal_molecules"] = list(mols)
     res.meta["ionbal_state_variable"] = sv
     res.meta["ionbal_mixture"] = mix.name
     res.meta["ionbal_species"] = list(sp_names)
@@ -365,7 +386,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     sources = {q: origin.get(q, name) for q, name in used.items()}
     passed = tuple(n for n in table.colnames if n not in read)
     return ColumnResult(res, sv, sp_names, frac, dens, comparisons, mix.name, sources, passed, tuple(notes),
-                        tname if tname in res.colnames else f"input_{tname}")
+                        tname if tname in res.colnames else f"input_{tname}", mols)
 
 
 # ---------------------------------------------------------------------------------------------------

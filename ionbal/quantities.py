@@ -55,6 +55,8 @@ class SolvedState:
     ``k_B T``; ``packed`` is the :class:`ionbal.data.pack.PackedMixture` (weights, masses, and the
     kernels' bundle ``packed.arrays``); ``x`` is ln n_e as the solver returned it, the variable the
     core kernels take (e.g. ``ion_moments_many(s.temperature, s.x, s.packed.arrays, out)``).
+    ``nh`` is the density of heavy particles, free atoms and ions plus molecules (each molecule one
+    particle); without molecules it is ``nn`` (``None`` means the same).
     """
 
     temperature: np.ndarray
@@ -63,6 +65,12 @@ class SolvedState:
     kT: np.ndarray
     packed: object
     x: np.ndarray
+    nh: np.ndarray | None = None
+
+    @property
+    def heavy(self) -> np.ndarray:
+        """Heavy particles (free atoms and ions, molecules) per cm^3: ``nn`` without molecules."""
+        return self.nn if self.nh is None else self.nh
 
 
 @dataclass(frozen=True)
@@ -91,6 +99,13 @@ class Quantity:
         return f"{self.label} [{unit_text(self.unit)}]"
 
 
+def _mean_molecular_weight(s: SolvedState) -> np.ndarray:
+    """rho / ((free atoms and ions + molecules + n_e) m_u); without molecules exactly the atoms-only formula."""
+    if s.nh is None:
+        return s.packed.mean_mass / ((1.0 + s.ne / s.nn) * AMU)
+    return s.packed.mean_mass / (((s.nh + s.ne) / s.nn) * AMU)
+
+
 def _q(*args, **kw) -> Quantity:
     return Quantity(*args, **kw)
 
@@ -105,9 +120,10 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
     _q("electron_pressure", "dyn cm-2", "electron pressure", "electron pressure",
        state_input=4, flag="--electron-pressure", short_flag="-e",
        compute=lambda s: s.ne * s.kT, symbol="P_e"),
-    _q("gas_pressure", "dyn cm-2", "gas pressure", "gas pressure (ideal gas: nuclei and free electrons)",
+    _q("gas_pressure", "dyn cm-2", "gas pressure",
+       "gas pressure (ideal gas: free atoms and ions, molecules, free electrons)",
        state_input=1, flag="--gas-pressure", short_flag="-P",
-       compute=lambda s: (s.nn + s.ne) * s.kT, symbol="P_gas"),
+       compute=lambda s: (s.heavy + s.ne) * s.kT, symbol="P_gas"),
     _q("mass_density", "g cm-3", "mass density", "mass density",
        state_input=2, flag="--mass-density", short_flag="-r",
        compute=lambda s: s.nn * s.packed.mean_mass, symbol="rho"),
@@ -119,8 +135,8 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
        "number density of all nuclei (every element and stage)", compute=lambda s: s.nn,
        symbol="n_nuclei"),
     _q("mean_molecular_weight", "1", "mean molecular weight",
-       "mean molecular weight per free particle, rho / ((n_nuclei + n_e) m_u)",
-       compute=lambda s: s.packed.mean_mass / ((1.0 + s.ne / s.nn) * AMU), symbol="mu"),
+       "mean molecular weight per free particle, rho / ((n_atoms + n_molecules + n_e) m_u)",
+       compute=lambda s: _mean_molecular_weight(s), symbol="mu"),
     # --- per-species outputs (cubes)
     _q("ion_fraction", "1", "ion fraction", "fraction of the element's nuclei in this ionization stage",
        kind="species"),

@@ -17,6 +17,7 @@ from .core.constants import K_B
 from .core.solver import ion_moments_many, log_fractions_many
 from .data.mixture import Mixture
 from .data.pack import PackedMixture
+from .data.molecules import known_molecules, parse_molecule
 from .data.species import parse_species
 from .quantities import POINT_OUTPUTS, QUANTITIES, SolvedState, astropy_unit, species_column_name
 from .selection import resolve_species
@@ -45,7 +46,7 @@ class IonizationResult:
 
     def __init__(self, packed: PackedMixture, shape: tuple, temperature: np.ndarray, x: np.ndarray,
                  ln_nuclei: np.ndarray, iterations: np.ndarray, status: np.ndarray, state_variable: str,
-                 *, units: bool = False):
+                 *, units: bool = False, chemistry=None):
         self.units = bool(units)
         self._packed = packed
         self.shape = tuple(shape)
@@ -57,7 +58,14 @@ class IonizationResult:
         with np.errstate(over="ignore", invalid="ignore"):
             ne = np.where(good, np.exp(x), np.nan)
             nn = np.where(good, np.exp(ln_nuclei), np.nan)
-        self._state = SolvedState(temperature, ne, nn, K_B * temperature, packed, x)
+        self._chem = chemistry
+        self._ln_share = None
+        nh = None
+        if chemistry is not None:
+            with np.errstate(over="ignore", invalid="ignore"):
+                nh = np.where(good, chemistry.free_atoms.sum(axis=1) + chemistry.molecule_density.sum(axis=1),
+                              np.nan)
+        self._state = SolvedState(temperature, ne, nn, K_B * temperature, packed, x, nh)
         self._flat: dict[str, np.ndarray] = {"temperature": temperature, "iterations": iterations,
                                              "status": status}
         self._logfrac_cache: dict[int, np.ndarray] = {}
@@ -200,16 +208,82 @@ class IonizationResult:
 
     # -- species: the one place that maps a species to the packed arrays ---------------------------
     def _species(self, species):
+        m = self._as_molecule(species)
+        if m is not None:
+            raise ValueError(f"{m} is a molecule: it has no stage fraction; use number_density('{m}') or "
+                             f"partial_pressure('{m}'), or element_budget(element) for the share of an "
+                             "element's nuclei it holds")
         # a bare element symbol would parse as the neutral atom: refuse it rather than guess
         text = species.strip() if isinstance(species, str) else ""
         if text.isalpha() and len(text) <= 2 and text.capitalize() in self._packed.mixture.elements:
             el = text.capitalize()
             raise ValueError(f"{species!r} is an element, not a species; name the stage, e.g. '{el} I' or "
                              f"'{el} II', or use fractions('{el}') for all its stages")
-        sp = parse_species(species)
-        if getattr(sp, "is_molecule", False):  # pragma: no cover - molecules are not solved yet
-            raise ValueError(f"{sp} is a molecule; this solve has atoms and atomic ions only")
-        return sp
+        return parse_species(species)
+
+    @staticmethod
+    def _as_molecule(species):
+        """The :class:`~ionbal.data.molecules.Molecule` a name means, or None for an atomic species."""
+        if getattr(species, "is_molecule", False):
+            return species
+        if not isinstance(species, str):
+            return None
+        try:
+            parse_species(species)
+            return None
+        except ValueError:
+            pass
+        try:
+            m = parse_molecule(species)
+        except ValueError:
+            return None
+        # only a tabulated molecule: "FeII" is a misspelt stage, not Fe + I2
+        return m if m in known_molecules() else None
+
+    def _molecule_column(self, m) -> np.ndarray:
+        """Number density [cm^-3] of one molecule of the solve, flat."""
+        if self._chem is None:
+            raise ValueError(f"molecule {m} is not part of this solve (it was solved without molecules; "
+                             "pass molecules=True or a list that includes it)")
+        try:
+            i = self._chem.molecules.index(m)
+        except ValueError:
+            raise ValueError(f"molecule {m} is not part of this solve; it has {len(self.molecules)} "
+                             "(see result.molecules)") from None
+        good = np.isfinite(self._state.nn)
+        return np.where(good, self._chem.molecule_density[:, i], np.nan)
+
+    @property
+    def molecules(self) -> tuple:
+        """Labels of the molecules of the solve (``()`` without molecules), e.g. ``("H2", "CO", ...)``."""
+        return () if self._chem is None else tuple(str(m) for m in self._chem.molecules.molecules)
+
+    def molecule_densities(self, molecules=None) -> np.ndarray:
+        """Number densities [cm^-3] of molecules (default: all of :attr:`molecules`), shape ``(n, *shape)``."""
+        names = self.molecules if molecules is None else [str(parse_molecule(m)) for m in molecules]
+        out = np.empty((len(names),) + self.shape)
+        for k, m in enumerate(names):
+            out[k] = self._molecule_column(parse_molecule(m)).reshape(self.shape)
+        return self._out(out, "number_density")
+
+    def element_budget(self, element) -> dict:
+        """Where the nuclei of one element are: ``{label: share}`` over its stages and molecules.
+
+        Shares (arrays of :attr:`shape`) are of the element's nuclei: a stage's fraction, and
+        ``count * n(molecule) / n(element's nuclei)`` for each molecule holding it; they sum to 1.
+        """
+        p = self._packed
+        e = p.element_index(element)
+        out = {name: f for name, f in zip(self.stages(element), self.fractions(element))}
+        if self._chem is not None:
+            z = int(p.atomic_numbers[e])
+            nuclei = self._plain("nuclei_density").ravel() * float(p.elem_w[e])
+            for m in self._chem.molecules.molecules:
+                count = dict(m.composition).get(z, 0)
+                if count:
+                    with np.errstate(invalid="ignore", divide="ignore"):
+                        out[str(m)] = (count * self._molecule_column(m) / nuclei).reshape(self.shape)
+        return out
 
     def _weight(self, sp) -> float:
         """Share of all nuclei held by the element (atoms) of a species."""
@@ -243,7 +317,30 @@ class IonizationResult:
         for a in range(0, n, batch):
             b = min(n, a + batch)
             log_fractions_many(T[a:b], x[a:b], sel, p.arrays, buf[: b - a])
+            if self._chem is not None:
+                # Saha gives fractions of the free atoms; the element's nuclei are shared with molecules
+                share = self._log_atom_share()
+                for e in sel:
+                    f, k = int(p.elem_first[e]), int(p.elem_n[e])
+                    buf[: b - a, f:f + k] += share[a:b, e, None]
             yield a, b, buf[: b - a]
+
+    def _log_atom_share(self) -> np.ndarray:
+        """ln of the share of each element's nuclei in free atoms and atomic ions, (n_points, n_elements).
+
+        0 for elements that form no molecule of the solve (all their nuclei are atomic).
+        """
+        if self._ln_share is None:
+            p = self._packed
+            ch = self._chem
+            share = np.zeros((self._T.size, p.elem_w.size))
+            formers = np.flatnonzero(ch.molecules.elem_former >= 0)
+            with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+                nn = np.exp(ch.ln_nuclei_density)
+                for e in formers:
+                    share[:, e] = np.log(ch.free_atoms[:, e] / (p.elem_w[e] * nn))
+            self._ln_share = share
+        return self._ln_share
 
     def log_fraction(self, species) -> np.ndarray:
         """Natural log of the fraction of the element in this stage (finite even when tiny)."""
@@ -282,12 +379,19 @@ class IonizationResult:
 
     # -- number densities --------------------------------------------------------------------------
     def number_density(self, species) -> np.ndarray:
-        """Number density of one species [cm^-3], e.g. ``number_density("H-")``."""
+        """Number density of one species or molecule [cm^-3], e.g. ``number_density("H-")``, ``("CO")``."""
+        m = self._as_molecule(species)
+        if m is not None:
+            return self._out(self._molecule_column(m).reshape(self.shape), "number_density")
         sp = self._species(species)
         return self._out(self.fraction(sp) * self._plain("nuclei_density") * self._weight(sp), "number_density")
 
     def partial_pressure(self, species) -> np.ndarray:
-        """Partial pressure of one species, n k T [dyn cm^-2], e.g. ``partial_pressure("H I")``."""
+        """Partial pressure of one species or molecule, n k T [dyn cm^-2], e.g. ``partial_pressure("H2O")``."""
+        m = self._as_molecule(species)
+        if m is not None:
+            n = self._molecule_column(m).reshape(self.shape)
+            return self._out(n * K_B * self._plain("temperature"), "partial_pressure")
         sp = self._species(species)
         n = self.fraction(sp) * self._plain("nuclei_density") * self._weight(sp)
         return self._out(n * K_B * self._plain("temperature"), "partial_pressure")
@@ -322,7 +426,7 @@ class IonizationResult:
         of each element, without building any fraction array; ``use_kernel=False`` sums the
         public :meth:`fractions` instead (slower; for checks).
         """
-        if use_kernel:
+        if use_kernel and self._chem is None:  # the kernel knows free atoms only, not the molecules' share
             out = np.empty((self._T.size, 3))
             ion_moments_many(self._T, self._x, self._packed.arrays, out)
             return tuple(out[:, j].reshape(self.shape) for j in range(3))

@@ -45,6 +45,33 @@ def _validity_lines(result) -> list[str]:
     return lines
 
 
+#: how many molecules ``ionbal state`` lists (the most abundant first)
+TOP_MOLECULES = 8
+
+
+def _top_molecules(result, k: int = TOP_MOLECULES) -> list[tuple[str, float]]:
+    """The ``k`` most abundant molecules of a 0-D result: (label, number density [cm^-3])."""
+    if not result.molecules:
+        return []
+    dens = np.asarray(result.molecule_densities(), dtype=float).reshape(len(result.molecules))
+    if not np.isfinite(dens).any():
+        return []
+    order = np.argsort(-np.nan_to_num(dens, nan=-1.0))[:k]
+    return [(result.molecules[i], float(dens[i])) for i in order if dens[i] > 0]
+
+
+def _molecule_lines(result) -> list[str]:
+    if not result.molecules:
+        return ["  molecules        not included (atoms and atomic ions only)"]
+    top = _top_molecules(result)
+    nn = float(np.asarray(result.nuclei_density))
+    lines = [f"  molecules        {len(result.molecules)} included; the most abundant (number density, "
+             "per nucleus):"]
+    for label, n in top:
+        lines.append(f"    {label:<10} {n:.4e} cm^-3  {n / nn:.3e}")
+    return lines
+
+
 def state_record(result, *, elements=None) -> dict:
     """Everything ``ionbal state`` shows, as a JSON-ready dict (values in cgs, units named)."""
     import ionbal
@@ -71,6 +98,8 @@ def state_record(result, *, elements=None) -> dict:
             "limits": {VALIDITY_FLAGS[n][0]: VALIDITY_FLAGS[n][1] for n in PHYSICS_FLAGS},
         },
         "fractions": {},
+        "molecules": {label: n for label, n in _top_molecules(result, len(result.molecules))
+                      if n > 0.0},
     }
     for el in (elements or r.mixture.elements):
         names = r.stages(el)
@@ -87,13 +116,15 @@ def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
     f = lambda name: float(np.asarray(getattr(r, name)))  # noqa: E731
     mix = r.mixture
     lines = [
-        f"ionbal {ionbal.__version__}: LTE ionization balance (ideal gas, atoms and ions, no molecules)",
+        f"ionbal {ionbal.__version__}: LTE ionization balance (ideal gas, atoms, ions"
+        + (", molecules)" if r.molecules else ", no molecules)"),
         f"  mixture          {mix.name} ({len(mix.elements)} elements)",
         f"  temperature      {f('temperature'):.6g} K",
         f"  given            {r.state_variable.replace('_', ' ')}",
         *_quantity_lines(f),
         f"  status           {str(np.asarray(r.message))} ({int(np.asarray(r.iterations))} iterations)",
         *_validity_lines(r),
+        *_molecule_lines(r),
         "",
         f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g})",
     ]

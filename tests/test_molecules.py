@@ -315,7 +315,8 @@ def test_atoms_only_is_todays_answer():
     T = np.array([2500.0, 5000.0, 12000.0])
     P = np.array([1e4, 1e2, 1e6])
     s = solve_chemistry(pack(SOLAR), T, state="gas_pressure", value=P, molecules=False)
-    r = solve(T, gas_pressure=P)
+    # solve() now includes molecules by default; this check is about the atoms-only path
+    r = solve(T, gas_pressure=P, molecules=False)
     np.testing.assert_allclose(np.exp(s.ln_electron_density), r.electron_density, rtol=1e-12)
 
 

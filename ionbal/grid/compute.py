@@ -32,7 +32,7 @@ def compute_tile(task: TileTask) -> dict[str, np.ndarray]:
     T = np.asarray(task.temperature, dtype=np.float64)[:, None]
     S = np.asarray(task.state, dtype=np.float64)[None, :]
     r = solve(T, mixture=task.mixture, errors="mask", tol=task.tol, max_iterations=task.max_iterations,
-              **{task.state_variable: S})
+              molecules=task.molecules if task.molecules else False, **{task.state_variable: S})
     shape = (T.shape[0], S.shape[1])
     out: dict[str, np.ndarray] = {}
     for name in POINT_OUTPUTS:
@@ -46,6 +46,9 @@ def compute_tile(task: TileTask) -> dict[str, np.ndarray]:
     if task.number_densities:
         dens = r.number_densities(task.species, fractions=frac).reshape((len(task.species),) + shape)
         out["number_density"] = dens.astype(dtype, copy=False) if dens.dtype != dtype else dens
+    if task.molecules:
+        dens = r.molecule_densities(task.molecules).reshape((len(task.molecules),) + shape)
+        out["molecule_number_density"] = dens.astype(dtype, copy=False) if dens.dtype != dtype else dens
     if task.validity:
         from ..validity import bitmask
 

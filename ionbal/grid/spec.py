@@ -84,6 +84,7 @@ class TileTask:
     max_iterations: int
     validity: bool = True
     numba_threads: int | None = None
+    molecules: tuple | bool = False
 
 
 @dataclass(frozen=True)
@@ -121,6 +122,11 @@ class GridSpec:
         about as much time as the solve itself).
     tol, max_iterations
         Passed to :func:`ionbal.solve`.
+    molecules : bool or sequence of formulas
+        Molecules solved with the ions, as in :func:`ionbal.solve` (default False; True: every
+        tabulated molecule the mixture can form).  Stored resolved (the tuple of labels, or False), so
+        that resuming with another choice is refused; with molecules the file has a
+        ``molecule`` coordinate and a ``molecule_number_density`` cube.
     """
 
     temperature: Axis
@@ -136,6 +142,7 @@ class GridSpec:
     tol: float = 1e-13
     max_iterations: int = 200
     validity: bool = True
+    molecules: tuple | bool = False
 
     def __post_init__(self) -> None:
         from ..api import default_mixture
@@ -172,6 +179,7 @@ class GridSpec:
             for ia in range(len(a or (0,))):
                 self.mixture_at((im, ia) if m is not None else ())
         object.__setattr__(self, "species", resolve_species(mix, self.species))
+        object.__setattr__(self, "molecules", _resolve_molecules(mix, self.molecules))
         for name in ("number_densities", "float32", "validity"):
             object.__setattr__(self, name, bool(getattr(self, name)))
         ts = self.tile_size
@@ -272,6 +280,7 @@ class GridSpec:
             max_iterations=self.max_iterations,
             validity=self.validity,
             numba_threads=numba_threads,
+            molecules=self.molecules,
         )
 
     # -- serialisation ------------------------------------------------------------------------------
@@ -293,6 +302,8 @@ class GridSpec:
             "tol": self.tol,
             "max_iterations": self.max_iterations,
             "validity": self.validity,
+            # atoms-only specs keep their former layout (no key): files without it are atoms-only
+            **({"molecules": list(self.molecules)} if self.molecules else {}),
         }
 
     @classmethod
@@ -312,6 +323,7 @@ class GridSpec:
             tol=d.get("tol", 1e-13),
             max_iterations=d.get("max_iterations", 200),
             validity=d.get("validity", True),
+            molecules=tuple(d["molecules"]) if d.get("molecules") else False,
         )
 
     def fingerprint(self) -> dict:
@@ -335,7 +347,21 @@ class GridSpec:
             lines.append(f"            x [M/H] {', '.join(f'{v:+g}' for v in self.metallicity)}"
                          f" x [alpha/M] {', '.join(f'{v:+g}' for v in self.alpha)}")
         lines.append(f"mixture     {self.mixture.name} ({len(self.mixture)} elements)")
+        lines.append(f"molecules   {len(self.molecules)}" if self.molecules else "molecules   none (atoms only)")
         return lines
+
+
+def _resolve_molecules(mixture: Mixture, molecules) -> tuple | bool:
+    """The molecule choice of a spec, resolved: False, or the labels of the molecules solved."""
+    from ..api import _check_molecules
+    from ..data.molecules import pack_molecules
+    from ..data.pack import pack
+
+    choice = _check_molecules(molecules)
+    if choice is False:
+        return False
+    labels = tuple(str(m) for m in pack_molecules(pack(mixture), choice).molecules)
+    return labels or False
 
 
 def default_spec(**changes) -> GridSpec:

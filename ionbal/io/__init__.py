@@ -15,21 +15,23 @@ both read them with named dimensions and coordinates.
 Grid file layout (root group; ``X`` is the state variable, e.g. ``gas_pressure``;
 ``[metallicity, alpha,]`` appear only for grids with composition axes)::
 
-    dims:  [metallicity, alpha,] temperature, X, species, element
+    dims:  [metallicity, alpha,] temperature, X, species, element[, molecule]
     coordinates
         temperature(temperature)           K
         X(X)                               cgs (dyn cm-2, g cm-3 or cm-3)
         metallicity(metallicity), alpha(alpha)   dex   (composition axes only)
         species(species)                   names in spectroscopic notation, "Fe II", "H-"
         element(element)                   symbols
+        molecule(molecule)                 formulas, "H2", "CO", "H2O", "H2+" (grids with molecules only)
     per point, dims ([metallicity, alpha,] temperature, X)
         electron_density, electron_pressure, gas_pressure, mass_density,
         hydrogen_density, nuclei_density, mean_molecular_weight  (float64; the
         one that is the state axis itself is not repeated), status (int8, CF
         flag_values/flag_meanings), iterations (int32)
     cubes, dims ([metallicity, alpha,] species, temperature, X)
-        ion_fraction                       fraction of the element in that stage
+        ion_fraction                       fraction of the element's nuclei in that stage
         number_density                     cm-3 (optional)
+    molecule_number_density([metallicity, alpha,] molecule, temperature, X)   cm-3 (with molecules)
     partition_function(species, temperature)
     atomic_number(element), atomic_mass(element)
     abundance([metallicity, alpha,] element)    A(X) = log10(N_X/N_H) + 12

@@ -71,6 +71,10 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
         f[sv].attrs["spacing"] = spec.state.spacing
         _coordinate(f, "species", spec.species, dimid=dimid + 2)
         _coordinate(f, "element", elements, dimid=dimid + 3)
+        molecules = tuple(spec.molecules) if spec.molecules else ()
+        if molecules:
+            _coordinate(f, "molecule", molecules, dimid=dimid + 4,
+                        long_name="molecule by chemical formula (H2, CO, H2O, H2+, ...)")
 
         pdims = comp_dims + ("temperature", sv)
         pshape = comp_shape + (nt, ns)
@@ -93,8 +97,17 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
         if spec.number_densities:
             cubes["number_density"] = _variable(f, "number_density", cdims, cshape, spec.cube_dtype,
                                                 chunks=cchunks)
-        for ds in cubes.values():
-            ds.attrs["comment"] = ("species are labelled by the 'species' coordinate; "
+        if molecules:
+            mdims = comp_dims + ("molecule", "temperature", sv)
+            cubes["molecule_number_density"] = _variable(
+                f, "molecule_number_density", mdims, comp_shape + (len(molecules), nt, ns), spec.cube_dtype,
+                chunks=cchunks, units=QUANTITIES["number_density"].unit,
+                long_name="number density of the molecule (one particle each; its nuclei are in the "
+                          "elements' budgets)")
+        for key, ds in cubes.items():
+            ds.attrs["comment"] = (("molecules are labelled by the 'molecule' coordinate; "
+                                    if key == "molecule_number_density"
+                                    else "species are labelled by the 'species' coordinate; ")
                                    + ("single precision: values below ~1e-45 are stored as 0"
                                       if spec.float32 else "double precision"))
 

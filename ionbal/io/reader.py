@@ -117,6 +117,7 @@ class GridFile:
             self.axes = {d: self._read_raw(d) for d in self.dims}
             self.species = tuple(_attr_str(s) for s in self._read_raw("species"))
             self.elements = tuple(_attr_str(s) for s in self._read_raw("element"))
+            self.molecules = tuple(_attr_str(s) for s in self._read_raw("molecule")) if "molecule" in f else ()
             self.abundances = self._read_raw("abundance")
             self.variables = tuple(f.keys())
         except KeyError as exc:
@@ -246,12 +247,41 @@ class GridFile:
         return self._cached(("fraction", k),
                             lambda: np.asarray(self._read_raw("ion_fraction", lead + (k,)), dtype=np.float64))
 
-    def number_density(self, species) -> np.ndarray:
-        """Number density [cm^-3] of one species over the whole grid.
+    def _molecule_index(self, species):
+        """Index of a molecule in the ``molecule`` coordinate, or None for an atomic species."""
+        from ..data.molecules import known_molecules, parse_molecule
+        from ..data.species import parse_species
 
-        Read from the file when stored, else fraction x nuclei density x the
-        element's share of the nuclei (from the stored abundances).
+        if isinstance(species, str):
+            try:
+                parse_species(species)
+                return None
+            except ValueError:
+                pass
+        try:
+            m = parse_molecule(species)
+        except ValueError:
+            return None
+        if m not in known_molecules():
+            return None
+        name = str(m)
+        if name not in self.molecules:
+            held = _abbrev(self.molecules) if self.molecules else "no molecules (an atoms-only grid)"
+            raise ValueError(f"molecule {name} is not stored in {self.path}; it holds {held}")
+        return self.molecules.index(name)
+
+    def number_density(self, species) -> np.ndarray:
+        """Number density [cm^-3] of one species or molecule (``"CO"``) over the whole grid.
+
+        Read from the file when stored (molecules: ``molecule_number_density``), else
+        fraction x nuclei density x the element's share of the nuclei (from the stored
+        abundances).
         """
+        m = self._molecule_index(species)
+        if m is not None:
+            lead = (slice(None),) * (len(self.shape) - 2)
+            return self._cached(("molecule_number_density", m), lambda: np.asarray(
+                self._read_raw("molecule_number_density", lead + (m,)), dtype=np.float64))
         k = self._species_index(species)
         if "number_density" in self.variables:
             lead = (slice(None),) * (len(self.shape) - 2)
@@ -395,6 +425,8 @@ class GridFile:
         lines.append(f"  species           {len(self.species)} ({_abbrev(self.species, 8)}); cube "
                      f"{cube.dtype}" + (", number densities stored" if "number_density" in self.variables
                                        else ""))
+        lines.append(f"  molecules         {len(self.molecules)} ({_abbrev(self.molecules, 8)}); number densities "
+                     "stored" if self.molecules else "  molecules         none (atoms and atomic ions only)")
         counts = self.status_counts()
         lines.append("  status            " + ", ".join(f"{k} {v:,}" for k, v in counts.items()))
         vc = self.validity_counts()
