@@ -74,6 +74,9 @@ def test_sweep_small(name):
 
 
 @pytest.mark.slow
+@pytest.mark.xfail(strict=False, reason="known defect (issue 10, open): the joint molecular solve does not yet "
+                   "converge at every state of the 1e3-1e6 K x 1e-6-1e12 dyn cm^-2 domain; molecules stay "
+                   "opt-in until it does")
 @pytest.mark.parametrize("name", list(MIXTURES))
 def test_sweep_slow(name):
     rep = _sweep(name, 1500, seed=2026)
