@@ -109,15 +109,9 @@ def check_figure_path(path, *, overwrite: bool = False) -> str:
     ext = path.suffix.lower()
     if ext not in FORMATS:
         raise ValueError(f"figure {path}: unknown extension {ext or '(none)'}; use .png, .pdf or .svg")
-    if path.is_dir():
-        raise IsADirectoryError(f"figure {path} is a directory")
-    if path.exists() and not overwrite:
-        raise FileExistsError(f"figure {path} already exists; pass overwrite=True (--overwrite) to replace it")
-    parent = path.parent if str(path.parent) else Path(".")
-    if not parent.is_dir():
-        raise FileNotFoundError(f"cannot write {path}: directory {parent} does not exist")
-    if not os.access(parent, os.W_OK | os.X_OK):
-        raise PermissionError(f"cannot write {path}: directory {parent} is not writable")
+    from ..validate import check_output_path
+
+    check_output_path(path, overwrite=overwrite)  # the one rule for every file ionbal writes
     return FORMATS[ext]
 
 
