@@ -8,6 +8,7 @@ from typing import Mapping
 import numpy as np
 
 from .core import status as st
+from .core.config import SERIAL_POINTS  # up to this many points: solved on the calling thread
 from .core.constants import K_B
 from .core.solver import (
     MAX_ITER,
@@ -39,9 +40,6 @@ __all__ = ["solve", "IonizationResult", "STATE_VARIABLES", "default_mixture"]
 STATE_VARIABLES: dict[str, tuple[str, str]] = {n: (QUANTITIES[n].unit, QUANTITIES[n].label) for n in STATE_INPUTS}
 
 _ERRORS = ("raise", "mask")
-
-#: up to this many points are solved on the calling thread (waking the thread pool costs more)
-SERIAL_POINTS = 16
 
 
 def _nuclei_from_hydrogen(value, packed):

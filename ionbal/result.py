@@ -14,7 +14,15 @@ import numpy as np
 
 from .core import status as st
 from .core.constants import K_B
-from .core.solver import ion_moments_many, log_fractions_many
+from .core.config import SERIAL_POINTS
+from .core.solver import (
+    ion_moments_many,
+    log_fractions_chunk,
+    log_fractions_many,
+    no_dlnu,
+    tile_chunk,
+    tile_outputs_many,
+)
 from .data.mixture import Mixture
 from .data.pack import PackedMixture
 from .data.molecules import known_molecules, parse_molecule
@@ -70,6 +78,7 @@ class IonizationResult:
                                              "status": status}
         self._logfrac_cache: dict[int, np.ndarray] = {}
         self._validity = None
+        self._moments = None
 
     # -- enumeration (registry quantities) --------------------------------------------------------
     def keys(self) -> tuple:
@@ -316,7 +325,10 @@ class IonizationResult:
         buf = np.empty((batch, p.n_stages))
         for a in range(0, n, batch):
             b = min(n, a + batch)
-            log_fractions_many(T[a:b], x[a:b], sel, p.arrays, buf[: b - a])
+            if b - a <= SERIAL_POINTS:  # on the calling thread: a small call never wakes the thread pool
+                log_fractions_chunk(T[a:b], x[a:b], sel, p.arrays, *no_dlnu(b - a), buf[: b - a])
+            else:
+                log_fractions_many(T[a:b], x[a:b], sel, p.arrays, buf[: b - a])
             if self._chem is not None:
                 # Saha gives fractions of the free atoms; the element's nuclei are shared with molecules
                 share = self._log_atom_share()
@@ -377,6 +389,35 @@ class IonizationResult:
                 out[:, a:b] = np.exp(rows[:, cols].T)
         return out.reshape((len(names),) + self.shape)
 
+    def fractions_and_moments(self, species) -> np.ndarray:
+        """:meth:`species_fractions` of many species, with the :meth:`ion_moments` from the same pass.
+
+        One core pass per point (:func:`ionbal.core.solver.tile_outputs_many`) gives the fractions
+        and the three moments the validity flags need; the moments are kept, so :attr:`validity`
+        costs no second pass.  The same numbers as :meth:`species_fractions` and :meth:`ion_moments`.
+        """
+        if self._chem is not None:  # the kernel knows free atoms only, not the molecules' share
+            return self.species_fractions(species)
+        p = self._packed
+        names = [self._species(s) for s in species]
+        cols = np.array([p.stage_index(sp) for sp in names], dtype=np.int64)
+        n = self._T.size
+        out = np.empty((len(names), n))
+        mom = np.empty((n, 3))
+        batch = max(1, min(n, _BATCH_VALUES // max(1, len(names))))
+        buf = np.empty((batch, len(names)))
+        for a in range(0, n, batch):
+            b = min(n, a + batch)
+            if b - a <= SERIAL_POINTS:
+                tile_chunk(self._T[a:b], self._x[a:b], cols, p.arrays, *no_dlnu(b - a), buf[: b - a], mom[a:b],
+                           True)
+            else:
+                tile_outputs_many(self._T[a:b], self._x[a:b], cols, p.arrays, buf[: b - a], mom[a:b])
+            out[:, a:b] = buf[: b - a].T
+        if self._moments is None:
+            self._moments = tuple(mom[:, j].reshape(self.shape) for j in range(3))
+        return out.reshape((len(names),) + self.shape)
+
     # -- number densities --------------------------------------------------------------------------
     def number_density(self, species) -> np.ndarray:
         """Number density of one species or molecule [cm^-3], e.g. ``number_density("H-")``, ``("CO")``."""
@@ -427,9 +468,16 @@ class IonizationResult:
         public :meth:`fractions` instead (slower; for checks).
         """
         if use_kernel and self._chem is None:  # the kernel knows free atoms only, not the molecules' share
-            out = np.empty((self._T.size, 3))
-            ion_moments_many(self._T, self._x, self._packed.arrays, out)
-            return tuple(out[:, j].reshape(self.shape) for j in range(3))
+            if self._moments is None:
+                n = self._T.size
+                out = np.empty((n, 3))
+                if n <= SERIAL_POINTS:
+                    tile_chunk(self._T, self._x, np.empty(0, dtype=np.int64), self._packed.arrays, *no_dlnu(n),
+                               out[:, :0], out, False)
+                else:
+                    ion_moments_many(self._T, self._x, self._packed.arrays, out)
+                self._moments = tuple(out[:, j].reshape(self.shape) for j in range(3))
+            return self._moments
         p = self._packed
         s_q2 = np.zeros(self.shape)
         s_q53 = np.zeros(self.shape)

@@ -132,6 +132,11 @@ else:
         return numba.jit(**options)(func)
 
 
+#: calls of up to this many points run on the calling thread: waking numba's thread pool costs more
+#: than their work (on a busy machine much more), so small calls never start it
+SERIAL_POINTS = 16
+
+
 def needs_compiling(*kernels) -> bool:
     """Whether calling these kernels will compile them: not yet compiled in this process and no
     cache index of theirs on disk (a guess for the "compiling kernels" note; never raises).

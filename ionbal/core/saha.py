@@ -297,11 +297,24 @@ def element_log_fractions(C, f, n, x, out):
 
 
 @jit
-def element_charge_powers(C, f, n, q0, x):
-    """Per nucleus of one element: ``(sum_k f_k q_k^2, sum_{q>0} f_k q_k^{5/3}, sum_{q>0} f_k)``.
+def charge_power_table(n):
+    """``q^(5/3)`` for ``q = 0 .. n - 1`` (the Coulomb-coupling weight of a charge, one ``pow`` each)."""
+    out = np.empty(n)
+    for q in range(n):
+        out[q] = q ** (5.0 / 3.0)
+    return out
+
+
+@jit
+def element_charge_powers(C, f, n, q0, x, q53):
+    """Per nucleus of one element: ``(sum_k f_k q_k^2, sum_{q>0} f_k q_k^{5/3}, sum_{q>0} f_k, m, ln s)``.
 
     The moments the plasma-validity parameters need (Debye length, Coulomb
-    coupling), summed over :func:`populated_window`.
+    coupling), summed over :func:`populated_window`; ``q53`` is
+    :func:`charge_power_table`.  ``m`` (the peak log weight) and ``ln s`` (the
+    log of the window sum relative to it) normalise the stage fractions:
+    ``ln f_k = C_k - k x - m - ln s``; the stages left out of the window weigh
+    below ``e^-CUT`` of the peak, far below round-off of the sum.
     """
     kp, m, lo, hi = populated_window(C, f, n, q0, x, -1)
     s0 = 0.0
@@ -314,9 +327,9 @@ def element_charge_powers(C, f, n, q0, x):
         s0 += wt
         sq2 += wt * q * q
         if q > 0:
-            sq53 += wt * q ** (5.0 / 3.0)
+            sq53 += wt * q53[q]
             spos += wt
-    return sq2 / s0, sq53 / s0, spos / s0
+    return sq2 / s0, sq53 / s0, spos / s0, m, math.log(s0)
 
 
 #: a cached window is re-based (fresh exps, new window) once ``|x - x0|`` times the largest

@@ -38,6 +38,7 @@ from .config import jit, pjit, prange
 from .constants import K_B
 from .saha import (
     cached_charge_moments,
+    charge_power_table,
     closed_log_weights,
     dlnu_apply,
     dlnu_check,
@@ -409,28 +410,25 @@ def tile_chunk(T, x, sel_stage, mix, dl_stage, dl_val, out_frac, out_moments, wa
     """Serial body of :func:`tile_outputs_many_dlnu` (and of the moments kernels) for one chunk.
 
     Per point: the log Saha weights of every stage once (shared by a row of
-    equal T), the three validity moments of :func:`ion_moments_many` and,
-    when ``want_frac``, the fractions of the selected stages.
+    equal T), each element's populated window once (its exps give the three
+    validity moments of :func:`ion_moments_many` and the normalization of the
+    fractions) and, when ``want_frac``, one ``exp`` per selected stage.
     """
     elem_w = mix.elem_w
     elem_first = mix.elem_first
     elem_n = mix.elem_n
     elem_q0 = mix.elem_q0
-    n_stage = mix.stage_chi.size
     n_elem = elem_w.size
-    C = np.empty(n_stage)
+    C = np.empty(mix.stage_chi.size)
     saved = np.empty(dl_stage.size)
-    # element and position of each selected stage; which elements need a normalization
+    q53 = charge_power_table(int(np.max(elem_n)) + 1)
+    # element of each selected stage
     sel_e = np.empty(sel_stage.size, dtype=np.int64)
-    need = np.zeros(n_elem, dtype=np.bool_)
-    if want_frac:
-        for j in range(sel_stage.size):
-            s = sel_stage[j]
-            for e in range(n_elem):
-                if s >= elem_first[e] and s < elem_first[e] + elem_n[e]:
-                    sel_e[j] = e
-                    need[e] = True
-                    break
+    for j in range(sel_stage.size if want_frac else 0):
+        for e in range(n_elem):
+            if sel_stage[j] >= elem_first[e] and sel_stage[j] < elem_first[e] + elem_n[e]:
+                sel_e[j] = e
+                break
     norm = np.empty(n_elem)
     norm_l = np.empty(n_elem)
     T_done = np.nan
@@ -450,23 +448,12 @@ def tile_chunk(T, x, sel_stage, mix, dl_stage, dl_val, out_frac, out_moments, wa
         b = 0.0
         d = 0.0
         for e in range(n_elem):
-            q2, q53, pos = element_charge_powers(C, elem_first[e], elem_n[e], elem_q0[e], xp)
+            q2, qf, pos, m, lns = element_charge_powers(C, elem_first[e], elem_n[e], elem_q0[e], xp, q53)
             a += elem_w[e] * q2
-            b += elem_w[e] * q53
+            b += elem_w[e] * qf
             d += elem_w[e] * pos
-            if want_frac and need[e]:
-                # the normalization of element_log_fractions: every stage, relative to the maximum
-                f = elem_first[e]
-                m = -np.inf
-                for k in range(elem_n[e]):
-                    t = C[f + k] - k * xp
-                    if t > m:
-                        m = t
-                s0 = 0.0
-                for k in range(elem_n[e]):
-                    s0 += math.exp(C[f + k] - k * xp - m)
-                norm[e] = m
-                norm_l[e] = math.log(s0)
+            norm[e] = m
+            norm_l[e] = lns
         out_moments[p, 0] = a
         out_moments[p, 1] = b
         out_moments[p, 2] = d
@@ -474,8 +461,7 @@ def tile_chunk(T, x, sel_stage, mix, dl_stage, dl_val, out_frac, out_moments, wa
             for j in range(sel_stage.size):
                 s = sel_stage[j]
                 e = sel_e[j]
-                k = s - elem_first[e]
-                out_frac[p, j] = math.exp(C[s] - k * xp - norm[e] - norm_l[e])
+                out_frac[p, j] = math.exp(C[s] - (s - elem_first[e]) * xp - norm[e] - norm_l[e])
 
 
 @pjit

@@ -41,7 +41,8 @@ def compute_tile(task: TileTask) -> dict[str, np.ndarray]:
     out["status"] = np.ascontiguousarray(np.broadcast_to(r.status, shape), dtype=np.int8)
     out["iterations"] = np.ascontiguousarray(np.broadcast_to(r.iterations, shape), dtype=np.int32)
     dtype = np.dtype(task.dtype)
-    frac = species_fractions(r, task.species).reshape((len(task.species),) + shape)
+    # one pass per point for the fractions of every species and the moments of the validity flags
+    frac = r.fractions_and_moments(task.species).reshape((len(task.species),) + shape)
     out["ion_fraction"] = frac.astype(dtype, copy=False) if frac.dtype != dtype else frac
     if task.number_densities:
         dens = r.number_densities(task.species, fractions=frac).reshape((len(task.species),) + shape)
