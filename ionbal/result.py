@@ -35,6 +35,10 @@ __all__ = ["IonizationResult"]
 #: points per batch of the fraction kernels: bounded memory, independent of the mixture size
 _BATCH_VALUES = 1_000_000
 
+#: (id of the packed mixture, species names) -> (packed mixture, stage columns): a grid asks for the
+#: same few hundred names in every tile; the packed mixtures themselves are cached by ``pack``
+_COLUMNS: dict = {}
+
 
 class IonizationResult:
     """The ionization balance at every input point.
@@ -399,13 +403,12 @@ class IonizationResult:
         if self._chem is not None:  # the kernel knows free atoms only, not the molecules' share
             return self.species_fractions(species)
         p = self._packed
-        names = [self._species(s) for s in species]
-        cols = np.array([p.stage_index(sp) for sp in names], dtype=np.int64)
+        cols = self._stage_columns(species)
         n = self._T.size
-        out = np.empty((len(names), n))
+        out = np.empty((cols.size, n))
         mom = np.empty((n, 3))
-        batch = max(1, min(n, _BATCH_VALUES // max(1, len(names))))
-        buf = np.empty((batch, len(names)))
+        batch = max(1, min(n, _BATCH_VALUES // max(1, cols.size)))
+        buf = np.empty((batch, cols.size))
         for a in range(0, n, batch):
             b = min(n, a + batch)
             if b - a <= SERIAL_POINTS:
@@ -416,7 +419,21 @@ class IonizationResult:
             out[:, a:b] = buf[: b - a].T
         if self._moments is None:
             self._moments = tuple(mom[:, j].reshape(self.shape) for j in range(3))
-        return out.reshape((len(names),) + self.shape)
+        return out.reshape((cols.size,) + self.shape)
+
+    def _stage_columns(self, species) -> np.ndarray:
+        """Stage indices (int64) of the given species in the packed arrays (checked names)."""
+        p = self._packed
+        key = (id(p), tuple(species)) if all(isinstance(s, str) for s in species) else None
+        hit = _COLUMNS.get(key) if key is not None else None
+        if hit is not None and hit[0] is p:
+            return hit[1]
+        cols = np.array([p.stage_index(sp) for sp in (self._species(s) for s in species)], dtype=np.int64)
+        if key is not None:
+            if len(_COLUMNS) >= 64:
+                _COLUMNS.clear()
+            _COLUMNS[key] = (p, cols)
+        return cols
 
     # -- number densities --------------------------------------------------------------------------
     def number_density(self, species) -> np.ndarray:

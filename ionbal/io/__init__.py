@@ -42,8 +42,10 @@ command that made the file), ``ionbal_version``, ``ionbal_file_type``
 data table's title, sources and SHA-256), ``ionbal_grid_spec`` (JSON),
 ``ionbal_complete`` (1, written last).  Every numeric dataset is chunked
 (tiles of at most 64 x 64 points along the state axes, so slices along either
-axis read fast), compressed (shuffle + deflate) and checksummed (Fletcher-32:
-a damaged chunk is detected when read).
+axis read fast) and checksummed (Fletcher-32: a damaged chunk is detected when
+read); all but the double-precision cubes (``ion_fraction``, ``number_density``,
+``molecule_number_density`` without ``--float32``) are also compressed (shuffle
++ deflate): those barely compress (~20 %) and would cost most of the writing time.
 """
 
 from __future__ import annotations

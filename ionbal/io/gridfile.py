@@ -93,15 +93,20 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
         cdims = comp_dims + ("species", "temperature", sv)
         cshape = comp_shape + (n_sp, nt, ns)
         cchunks = (1,) * len(comp_shape) + (1, ct, cs)
-        cubes = {"ion_fraction": _variable(f, "ion_fraction", cdims, cshape, spec.cube_dtype, chunks=cchunks)}
+        # double-precision cubes are stored without deflate (still chunked and checksummed): their
+        # mantissas are close to random, deflate shrinks them by only ~20 % at ~14x the CPU time of
+        # the write (benchmarks/storage.py, benchmarks/README.md); float32 cubes shrink to ~70 % and keep it
+        deflate = bool(spec.float32)
+        cubes = {"ion_fraction": _variable(f, "ion_fraction", cdims, cshape, spec.cube_dtype, chunks=cchunks,
+                                           compress=deflate)}
         if spec.number_densities:
             cubes["number_density"] = _variable(f, "number_density", cdims, cshape, spec.cube_dtype,
-                                                chunks=cchunks)
+                                                chunks=cchunks, compress=deflate)
         if molecules:
             mdims = comp_dims + ("molecule", "temperature", sv)
             cubes["molecule_number_density"] = _variable(
                 f, "molecule_number_density", mdims, comp_shape + (len(molecules), nt, ns), spec.cube_dtype,
-                chunks=cchunks, units=QUANTITIES["number_density"].unit,
+                chunks=cchunks, units=QUANTITIES["number_density"].unit, compress=deflate,
                 long_name="number density of the molecule (one particle each; its nuclei are in the "
                           "elements' budgets)")
         for key, ds in cubes.items():

@@ -31,17 +31,43 @@ def _data_sources_cached() -> str:
             if not line.startswith("#"):
                 break
             header.append(line[2:] if line.startswith("# ") else line[1:])
-        try:
-            from astropy.table.meta import get_header_from_yaml
-
-            meta = get_header_from_yaml(header).get("meta", {}) or {}
-        except Exception:  # noqa: BLE001 - provenance is informative; never fail a run on it
-            meta = {}
+        meta = _header_meta(header)
         for key in ("title", "source", "generated_by"):
             if key in meta:
                 info[key] = _jsonable(meta[key])
         out[name] = info
     return json.dumps(out, sort_keys=True)
+
+
+def _header_meta(header: list) -> Mapping:
+    """The ``meta`` mapping of an ECSV header (its lines without the leading ``# ``).
+
+    Only the ``meta`` block is parsed, with PyYAML's safe loader (its C version when built): the
+    column list before it is long (thousands of lines for the partition functions) and parsing the
+    whole header with astropy's loader took seconds of every ``ionbal grid``.  Falls back to
+    astropy's reader for anything the safe loader does not take.
+    """
+    start = next((i for i, ln in enumerate(header) if ln.startswith("meta:")), None)
+    if start is None:
+        return {}
+    stop = next((i for i in range(start + 1, len(header)) if header[i][:1] not in (" ", "-", "")), len(header))
+    try:
+        import yaml
+
+        loader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
+        meta = yaml.load("\n".join(header[start:stop]), Loader=loader)["meta"]
+        if isinstance(meta, list):  # !!omap: a list of (key, value) pairs
+            meta = dict(meta)
+        if isinstance(meta, Mapping):
+            return meta
+    except Exception:  # noqa: BLE001 - fall back to the full reader below
+        pass
+    try:
+        from astropy.table.meta import get_header_from_yaml
+
+        return get_header_from_yaml(header).get("meta", {}) or {}
+    except Exception:  # noqa: BLE001 - provenance is informative; never fail a run on it
+        return {}
 
 
 def _jsonable(obj):
