@@ -281,3 +281,28 @@ def test_a_reader_holding_the_file_open_during_overwrite(previous, capsys):
         assert np.array_equal(g["electron_density"], old_ne, equal_nan=True)
     with open_grid(out) as g:
         assert g.shape[0] == 6
+
+
+def test_non_monotonic_depth_is_solved_with_a_warning_naming_the_rows(tmp_path, monkeypatch, capsys):
+    """Decision (issue 15): a depth column out of order is not an error (each depth point is solved on
+    its own) but never silent: a WARNING names the first rows that break the order."""
+    monkeypatch.chdir(tmp_path)
+    lines = MODEL.read_text().splitlines()
+    data = [k for k, ln in enumerate(lines) if ln.strip() and not ln.startswith("#")][1:]
+    lines[data[4]], lines[data[5]] = lines[data[5]], lines[data[4]]  # two depth points swapped
+    (tmp_path / "m.txt").write_text("\n".join(lines) + "\n")
+    capsys.readouterr()
+    assert main(["column", "m.txt", "-o", "c.ecsv", "-q"]) == 0
+    out = capsys.readouterr().out
+    warned = [ln for ln in out.splitlines() if "WARNING" in ln]
+    assert len(warned) == 2, out  # log_tau and depth, one line each
+    assert all("not monotonic" in ln and f"data row 6 (line {data[5] + 1})" in ln for ln in warned), warned
+    assert main(["column", str(MODEL), "-o", "clean.ecsv", "-q"]) == 0
+    assert "WARNING" not in capsys.readouterr().out  # a clean file: no warning
+    from ionbal.io import read_model
+
+    assert read_model(MODEL).meta["ionbal_warnings"] == []
+    lines[data[4]], lines[data[5]] = lines[data[5]], lines[data[4]]  # back in order, then reversed
+    decreasing = "\n".join([lines[k] for k in range(data[0])] + [lines[k] for k in reversed(data)]) + "\n"
+    (tmp_path / "down.txt").write_text(decreasing)  # running the other way is an order too
+    assert read_model(tmp_path / "down.txt").meta["ionbal_warnings"] == []
