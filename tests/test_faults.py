@@ -306,3 +306,72 @@ def test_non_monotonic_depth_is_solved_with_a_warning_naming_the_rows(tmp_path, 
     decreasing = "\n".join([lines[k] for k in range(data[0])] + [lines[k] for k in reversed(data)]) + "\n"
     (tmp_path / "down.txt").write_text(decreasing)  # running the other way is an order too
     assert read_model(tmp_path / "down.txt").meta["ionbal_warnings"] == []
+
+
+@pytest.fixture
+def small_disk(tmp_path, monkeypatch):
+    """A real 2 MB file system (tmpfs) as the working directory; skipped where mounting is not permitted
+    (the ENOSPC injections above cover the same paths there)."""
+    import subprocess
+
+    d = tmp_path / "small-disk"
+    d.mkdir()
+    if os.geteuid() != 0:
+        pytest.skip("mounting a small file system needs root")
+    r = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=2m", "tmpfs", str(d)], capture_output=True, text=True)
+    if r.returncode != 0:
+        pytest.skip(f"cannot mount a small file system here: {r.stderr.strip()}")
+    monkeypatch.chdir(d)
+    try:
+        yield d
+    finally:
+        monkeypatch.chdir(tmp_path)
+        subprocess.run(["umount", str(d)], check=False)
+
+
+def _complete_looking(d: Path, keep: str) -> list[str]:
+    """Files under d (parts folders included) other than ``keep`` that read as a finished result."""
+    found = []
+    for p in d.rglob("*"):
+        if p.is_file() and p.name != keep and p.suffix in (".h5", ".nc", ".ecsv", ".csv", ".txt"):
+            found.append(str(p.relative_to(d)))
+    return found
+
+
+def test_a_real_full_disk_grid_and_column(small_disk, capsys):
+    """Issue 15, disk full on a real 2 MB file system: one-line error, the previous complete file of the
+    same name untouched, nothing left that looks complete."""
+    d = small_disk
+    assert main(["grid", *SMALL, "-o", "r.h5"]) == 0
+    before = (d / "r.h5").read_bytes()
+    capsys.readouterr()
+    big = ["-T", "3000:20000:50", "-P", "1e1:1e6:40", "--tile-size", "500", "-q"]  # ~8 MB of results
+    line = _one_line_error(capsys, main(["grid", *big, "-o", "r.h5", "--overwrite"]))
+    assert "No space left on device" in line, line
+    assert (d / "r.h5").read_bytes() == before and is_grid_file(d / "r.h5")
+    assert _complete_looking(d, "r.h5") == [], sorted(p.name for p in d.rglob("*"))
+    parts = G.parts_dir_for(d / "r.h5")  # tiles finished before the disk filled: kept to resume
+    kept = sorted(p.name for p in parts.iterdir()) if parts.exists() else []
+    print(f"\nkept to resume after the full disk: {kept}")
+    assert all(n.startswith("tile-") or n in ("lock", "spec.json") for n in kept), kept
+    free_after_grid = os.statvfs(d).f_bavail * os.statvfs(d).f_frsize
+    # a column: a small one fits, a long one (1,000 depth points, every species) does not
+    lines = MODEL.read_text().splitlines()
+    rows = [ln for ln in lines if ln.strip() and not ln.startswith("#")]
+    (d / "m.txt").write_text("\n".join(rows[:3]) + "\n")
+    assert main(["column", "m.txt", "-o", "c.ecsv", "-q"]) == 0
+    before_c = (d / "c.ecsv").read_bytes()
+    data = np.array([[float(x) for x in r.split()] for r in rows[1:]])
+    fine = np.linspace(0, len(data) - 1, 1000)
+    cols = np.column_stack([np.interp(fine, np.arange(len(data)), data[:, j]) for j in range(data.shape[1])])
+    with open(d / "long.txt", "w") as f:
+        f.write(rows[0] + "\n")
+        np.savetxt(f, cols, fmt="%.6e")
+    capsys.readouterr()
+    line = _one_line_error(capsys, main(["column", "long.txt", "-o", "c.ecsv", "-q", "--overwrite"]))
+    assert "No space left on device" in line, line
+    assert (d / "c.ecsv").read_bytes() == before_c
+    assert sorted(p.name for p in d.iterdir() if p != parts) == ["c.ecsv", "long.txt", "m.txt", "r.h5"]
+    print(f"\nreal 2 MB file system: grid (~8 MB) and column (1,000 points) refused with one line each; previous "
+          f"files untouched; {free_after_grid} bytes free after the failed grid (its partial file removed); "
+          "bytes lost 0")
