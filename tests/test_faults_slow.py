@@ -3,7 +3,8 @@
 Every check runs ``ionbal`` as a separate process (the installed command line), kills or races it, and
 then looks at what is left under the output path: nothing, or a complete grid file whose every dataset
 is bitwise equal to an uninterrupted run.  Each test prints its figures (trials, outcomes, bytes lost).
-Slow: run with ``pytest -m slow tests/test_faults_slow.py -s``.
+Run with ``pytest -m faults tests/test_faults_slow.py -s`` (the installed ``ionbal`` console script beside
+the running Python is what is started, so the Ctrl-C handling of the real entry point is tested).
 """
 
 from __future__ import annotations
@@ -24,8 +25,8 @@ import ionbal
 from ionbal.grid import parts_dir_for
 from ionbal.io import is_grid_file
 
-#: long campaigns of real processes (about 25 minutes with the default trial counts): run on demand
-#: with ``pytest -m faults`` (IONBAL_RACE_TRIALS / IONBAL_KILL_TRIALS set the counts), not by CI
+#: long campaigns of real processes (about 40 minutes with the default trial counts): run on demand
+#: with ``pytest -m faults`` (IONBAL_RACE_TRIALS / IONBAL_KILL_TRIALS / IONBAL_CTRLC_TRIALS set the counts), not by CI
 pytestmark = pytest.mark.faults
 
 #: the grid of the issue's measurement (201 x 161, 12 tiles) and a different, small one
