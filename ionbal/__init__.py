@@ -9,12 +9,10 @@ element splits over its ionization stages.
 >>> r = ionbal.solve(6000.0, gas_pressure=1e5)          # doctest: +SKIP
 >>> r.electron_density, r.fraction("Fe II")              # doctest: +SKIP
 
-The solver (and with it numba) is imported on first use of :func:`solve`, so
-``import ionbal`` and the data helpers stay quick.
+Every name is imported on first use (the solver, and with it numba, on first use of
+:func:`solve`), so ``import ionbal`` loads nothing heavy: the ``ionbal`` command installs its
+Ctrl-C handler before numpy is imported.
 """
-
-from ._version import __version__
-from .data import Mixture, Species, ionization_energy, parse_species, partition_function
 
 __all__ = [
     "__version__",
@@ -32,6 +30,12 @@ __all__ = [
 
 # name -> (module, attribute), imported on first access (PEP 562)
 _LAZY = {
+    "__version__": ("._version", "__version__"),
+    "Mixture": (".data", "Mixture"),
+    "Species": (".data", "Species"),
+    "parse_species": (".data", "parse_species"),
+    "partition_function": (".data", "partition_function"),
+    "ionization_energy": (".data", "ionization_energy"),
     "solve": (".api", "solve"),
     "IonizationResult": (".result", "IonizationResult"),
     "open_grid": (".io", "open_grid"),

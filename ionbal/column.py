@@ -299,7 +299,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         raise ValueError(f"the model needs one of the columns {', '.join(STATE_INPUTS)} besides temperature; "
                          f"it has {', '.join(table.colnames)} (map one: columns={{'Pg': 'gas_pressure'}})")
     sname = used[sv]
-    notes = []
+    notes = list(table.meta.get("ionbal_warnings") or ())  # e.g. a depth column out of order
     others = [s for s in present if s != sv and s not in _COMPARED]
     if others:
         notes.append(f"{', '.join(others)} also present; {sv} is the state input"

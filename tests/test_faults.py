@@ -229,6 +229,22 @@ from hypothesis import HealthCheck, given, settings  # noqa: E402
 from hypothesis import strategies as hs  # noqa: E402
 
 _FUZZ = settings(deadline=None, max_examples=150, suppress_health_check=[HealthCheck.function_scoped_fixture])
+#: what the fuzzers tried: cases, clean one-line errors, files read (printed at the end of the module)
+FUZZ_TALLY: dict[str, dict[str, int]] = {}
+
+
+def _tally(test: str, outcome: str) -> None:
+    t = FUZZ_TALLY.setdefault(test, {"cases": 0, "read": 0, "clean one-line errors": 0})
+    t["cases"] += 1
+    t[outcome] += 1
+
+
+@pytest.fixture(scope="module", autouse=True)
+def _print_fuzz_figures():
+    yield
+    for test, t in FUZZ_TALLY.items():
+        print(f"\n{test}: {t['cases']} cases, {t['read']} read, {t['clean one-line errors']} clean one-line errors, "
+              "0 tracebacks, 0 silent NaN")
 _TOKENS = hs.sampled_from(["temperature", "gas_pressure", "T", "Pgas", "depth", "log_tau", "5000", "1e4", "-1",
                            "nan", "inf", "0", "#", ",", "\t", " ", "\r\n", "\n", "\ufeff", "x", "1e400", "é"])
 
@@ -240,15 +256,45 @@ def test_fuzz_model_reader(tmp_path, text):
 
     p = tmp_path / "fuzz.txt"
     p.write_bytes(text.encode("utf-8", "surrogatepass"))
+    _check_model_read(p, "model reader (text)")
+
+
+def _check_model_read(p: Path, test: str) -> None:
+    from ionbal.io import read_model
+
     try:
         t = read_model(p)
     except ValueError as exc:  # the one allowed failure: a message naming the problem
         assert str(exc) and "\n" not in str(exc).strip()
+        _tally(test, "clean one-line errors")
         return
     assert len(t)
     for name in t.meta["ionbal_columns"]:  # every column read as a known quantity: numbers, never a silent NaN
         v = np.asarray(t[name], dtype=float)
         assert np.all(np.isfinite(v)), name
+    _tally(test, "read")
+
+
+_UNITS = hs.sampled_from(["K", "dyn / cm2", "Pa", "g / cm3", "kg / m3", "cm-3", "m", "km", "", "deg_C", "bar",
+                          "erg", "nonsense", "K2", "1 / cm3", "dex", "s"])
+_NAMES = hs.sampled_from(["temperature", "gas_pressure", "T", "Pgas", "rho", "mass_density", "ne",
+                          "electron_pressure", "depth", "log_tau", "x"])
+_DTYPES = hs.sampled_from(["float64", "float32", "int64", "string", "bool", "complex128", "nonsense"])
+_VALUES = hs.sampled_from(["5000", "1e4", "-1", "nan", "0", "x", "1e400", "3.5e-3", '""', "True", "6000"])
+
+
+@_FUZZ
+@given(cols=hs.lists(hs.tuples(_NAMES, _UNITS, _DTYPES), min_size=0, max_size=4),
+       rows=hs.lists(hs.lists(_VALUES, min_size=0, max_size=5), max_size=5), version=hs.sampled_from(["1.0", "0.9", "x"]))
+def test_fuzz_ecsv_model_reader(tmp_path, cols, rows, version):
+    """ECSV headers with random names, units and data types, and random values below them."""
+    head = [f"# %ECSV {version}", "# ---", "# datatype:"]
+    head += [f"# - {{name: {n}, unit: {u!r}, datatype: {d}}}" if u else f"# - {{name: {n}, datatype: {d}}}"
+             for n, u, d in cols]
+    body = [" ".join(n for n, _, _ in cols)] + [" ".join(r) for r in rows]
+    p = tmp_path / "fuzz.ecsv"
+    p.write_text("\n".join(head + body) + "\n")
+    _check_model_read(p, "model reader (ECSV)")
 
 
 @_FUZZ
@@ -264,7 +310,9 @@ def test_fuzz_axis_syntax(text, name):
         ax = Axis.parse(name, text)
     except ValueError as exc:
         assert name in str(exc) or "axis" in str(exc)
+        _tally("axis syntax", "clean one-line errors")
         return
+    _tally("axis syntax", "read")
     v = np.asarray(ax.array() if callable(getattr(ax, "array", None)) else ax.values, dtype=float)
     assert len(v) >= 1 and np.all(np.isfinite(v)) and np.all(np.diff(v) > 0)
 
@@ -281,3 +329,97 @@ def test_a_reader_holding_the_file_open_during_overwrite(previous, capsys):
         assert np.array_equal(g["electron_density"], old_ne, equal_nan=True)
     with open_grid(out) as g:
         assert g.shape[0] == 6
+
+
+def test_non_monotonic_depth_is_solved_with_a_warning_naming_the_rows(tmp_path, monkeypatch, capsys):
+    """Decision (issue 15): a depth column out of order is not an error (each depth point is solved on
+    its own) but never silent: a WARNING names the first rows that break the order."""
+    monkeypatch.chdir(tmp_path)
+    lines = MODEL.read_text().splitlines()
+    data = [k for k, ln in enumerate(lines) if ln.strip() and not ln.startswith("#")][1:]
+    lines[data[4]], lines[data[5]] = lines[data[5]], lines[data[4]]  # two depth points swapped
+    (tmp_path / "m.txt").write_text("\n".join(lines) + "\n")
+    capsys.readouterr()
+    assert main(["column", "m.txt", "-o", "c.ecsv", "-q"]) == 0
+    out = capsys.readouterr().out
+    warned = [ln for ln in out.splitlines() if "WARNING" in ln]
+    assert len(warned) == 2, out  # log_tau and depth, one line each
+    assert all("not monotonic" in ln and f"data row 6 (line {data[5] + 1})" in ln for ln in warned), warned
+    assert main(["column", str(MODEL), "-o", "clean.ecsv", "-q"]) == 0
+    assert "WARNING" not in capsys.readouterr().out  # a clean file: no warning
+    from ionbal.io import read_model
+
+    assert read_model(MODEL).meta["ionbal_warnings"] == []
+    lines[data[4]], lines[data[5]] = lines[data[5]], lines[data[4]]  # back in order, then reversed
+    decreasing = "\n".join([lines[k] for k in range(data[0])] + [lines[k] for k in reversed(data)]) + "\n"
+    (tmp_path / "down.txt").write_text(decreasing)  # running the other way is an order too
+    assert read_model(tmp_path / "down.txt").meta["ionbal_warnings"] == []
+
+
+@pytest.fixture
+def small_disk(tmp_path, monkeypatch):
+    """A real 2 MB file system (tmpfs) as the working directory; skipped where mounting is not permitted
+    (the ENOSPC injections above cover the same paths there)."""
+    import subprocess
+
+    d = tmp_path / "small-disk"
+    d.mkdir()
+    if os.geteuid() != 0:
+        pytest.skip("mounting a small file system needs root")
+    r = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=2m", "tmpfs", str(d)], capture_output=True, text=True)
+    if r.returncode != 0:
+        pytest.skip(f"cannot mount a small file system here: {r.stderr.strip()}")
+    monkeypatch.chdir(d)
+    try:
+        yield d
+    finally:
+        monkeypatch.chdir(tmp_path)
+        subprocess.run(["umount", str(d)], check=False)
+
+
+def _complete_looking(d: Path, keep: str) -> list[str]:
+    """Files under d (parts folders included) other than ``keep`` that read as a finished result."""
+    found = []
+    for p in d.rglob("*"):
+        if p.is_file() and p.name != keep and p.suffix in (".h5", ".nc", ".ecsv", ".csv", ".txt"):
+            found.append(str(p.relative_to(d)))
+    return found
+
+
+def test_a_real_full_disk_grid_and_column(small_disk, capsys):
+    """Issue 15, disk full on a real 2 MB file system: one-line error, the previous complete file of the
+    same name untouched, nothing left that looks complete."""
+    d = small_disk
+    assert main(["grid", *SMALL, "-o", "r.h5"]) == 0
+    before = (d / "r.h5").read_bytes()
+    capsys.readouterr()
+    big = ["-T", "3000:20000:50", "-P", "1e1:1e6:40", "--tile-size", "500", "-q"]  # ~8 MB of results
+    line = _one_line_error(capsys, main(["grid", *big, "-o", "r.h5", "--overwrite"]))
+    assert "No space left on device" in line, line
+    assert (d / "r.h5").read_bytes() == before and is_grid_file(d / "r.h5")
+    assert _complete_looking(d, "r.h5") == [], sorted(p.name for p in d.rglob("*"))
+    parts = G.parts_dir_for(d / "r.h5")  # tiles finished before the disk filled: kept to resume
+    kept = sorted(p.name for p in parts.iterdir()) if parts.exists() else []
+    print(f"\nkept to resume after the full disk: {kept}")
+    assert all(n.startswith("tile-") or n in ("lock", "spec.json") for n in kept), kept
+    free_after_grid = os.statvfs(d).f_bavail * os.statvfs(d).f_frsize
+    # a column: a small one fits, a long one (1,000 depth points, every species) does not
+    lines = MODEL.read_text().splitlines()
+    rows = [ln for ln in lines if ln.strip() and not ln.startswith("#")]
+    (d / "m.txt").write_text("\n".join(rows[:3]) + "\n")
+    assert main(["column", "m.txt", "-o", "c.ecsv", "-q"]) == 0
+    before_c = (d / "c.ecsv").read_bytes()
+    data = np.array([[float(x) for x in r.split()] for r in rows[1:]])
+    fine = np.linspace(0, len(data) - 1, 1000)
+    cols = np.column_stack([np.interp(fine, np.arange(len(data)), data[:, j]) for j in range(data.shape[1])])
+    with open(d / "long.txt", "w") as f:
+        f.write(rows[0] + "\n")
+        np.savetxt(f, cols, fmt="%.6e")
+    capsys.readouterr()
+    line = _one_line_error(capsys, main(["column", "long.txt", "-o", "c.ecsv", "-q", "--overwrite"]))
+    assert "No space left on device" in line, line
+    assert (d / "c.ecsv").read_bytes() == before_c
+    assert sorted(p.name for p in d.iterdir() if p != parts) == ["c.ecsv", "long.txt", "m.txt", "r.h5"]
+    print(f"\nreal 2 MB file system: grid (~8 MB) and column (1,000 points) refused with one line each; previous "
+          f"files untouched; {free_after_grid} bytes free after the failed grid (its partial file removed); "
+          "bytes lost 0")

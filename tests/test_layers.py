@@ -54,6 +54,7 @@ LAYERS = {
     "io": 4,
     "grid": 4.5, "column": 4.5, "plot": 4.5,
     "cli": 5, "plot_cli": 5, "state_report": 5,
+    "_launch": 6, "__main__": 6,
 }
 #: no module of the package may be longer than this (lines)
 MAX_MODULE_LINES = 600

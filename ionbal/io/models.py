@@ -5,6 +5,11 @@ found by name, by a common alias (``T``, ``Pgas``, ``rho``, ``Pe``, ``ne``, ...:
 or by an explicit mapping (``columns={"Tgas": "temperature"}``), renamed to their registry names
 and given their registry units; every other column is kept as it is.  The mapping used is kept in
 ``table.meta["ionbal_columns"]`` (registry name -> column of the file).
+
+A depth column (:data:`DEPTH_COLUMNS`: depth, height, optical depth, column mass) that does not run
+one way (rows out of order, two models joined, a repeated point) is not an error, since every depth
+point is solved on its own, but it is never silent: ``table.meta["ionbal_warnings"]`` holds a
+warning naming the first rows where the order breaks, and ``ionbal column`` prints it.
 """
 
 from __future__ import annotations
@@ -16,7 +21,7 @@ import numpy as np
 from ..quantities import STATE_INPUTS, QUANTITIES, astropy_unit
 
 __all__ = ["read_model", "resolve_columns", "parse_column_map", "MODEL_UNITS", "ALIASES", "MAX_MODEL_BYTES",
-           "canonical_column_name"]
+           "canonical_column_name", "DEPTH_COLUMNS"]
 
 #: cgs units of the model columns ionbal knows (registry spelling)
 MODEL_UNITS: dict[str, str] = {n: QUANTITIES[n].unit for n in ("temperature",) + STATE_INPUTS + ("electron_density",)}
@@ -34,6 +39,10 @@ _BY_ALIAS: dict[str, str] = {a: name for name, aliases in ALIASES.items() for a 
 assert set(ALIASES) == set(MODEL_UNITS), "every known model column needs an alias entry"
 
 MAX_MODEL_BYTES = 512 * 1024 * 1024
+
+#: pass-through columns that order the depth points (compared as canonical names): each must run one way
+DEPTH_COLUMNS = ("depth", "height", "z", "tau", "log_tau", "logtau", "tau_ross", "log_tau_ross", "tau_5000",
+                 "log_tau_5000", "column_mass", "log_column_mass", "log_m")
 
 
 def _canon(name: str) -> str:
@@ -159,7 +168,30 @@ def read_model(path, columns=None) -> "Table":  # noqa: F821
         _known_column(path, t, name, target, ecsv)
     t.meta["ionbal_columns"] = dict(used)
     t.meta["ionbal_model_file"] = str(path)
+    t.meta["ionbal_warnings"] = _depth_order_warnings(path, t)
     return t
+
+
+def _depth_order_warnings(path: Path, t, shown: int = 3) -> list[str]:
+    """A warning per depth column that does not run one way, naming the first rows that break it."""
+    out = []
+    lines = t.meta.get("line_numbers")
+    for name in t.colnames:
+        if _canon(name) not in DEPTH_COLUMNS or t[name].dtype.kind not in "fiu" or len(t) < 2:
+            continue
+        v = np.asarray(t[name], dtype=np.float64)
+        step = np.diff(v)
+        way = np.sign(v[-1] - v[0]) or np.sign(step[np.flatnonzero(step)[0]] if np.any(step) else 0.0)
+        broken = np.flatnonzero(~(np.sign(step) == way)) + 1  # rows (0-based) out of order or repeated
+        if broken.size == 0:
+            continue
+        where = ", ".join(f"data row {i + 1}" + (f" (line {lines[i]})" if lines and i < len(lines) else "")
+                          + f" {name} = {v[i]:g} after {v[i - 1]:g}" for i in broken[:shown])
+        more = f" and {broken.size - shown} more" if broken.size > shown else ""
+        out.append(f"WARNING: model file {path}: column {name} is not monotonic: {where}{more}; every depth point "
+                   "is solved on its own, but check the file (rows out of order? two models joined?) before "
+                   "plotting or integrating along depth")
+    return out
 
 
 def _known_column(path: Path, t, name: str, target: str, ecsv: bool) -> None:
@@ -198,11 +230,19 @@ def _known_column(path: Path, t, name: str, target: str, ecsv: bool) -> None:
 def _read_ecsv(path: Path, text: str):
     from astropy.table import Table
 
+    import warnings
+
     try:
-        t = Table.read(text, format="ascii.ecsv")
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            t = Table.read(text, format="ascii.ecsv")
     except Exception as exc:  # noqa: BLE001 - astropy raises many kinds; report one line
         msg = str(exc).strip().splitlines()
         raise ValueError(f"cannot read ECSV model file {path}: {msg[0] if msg else type(exc).__name__}") from None
+    for w in caught:  # e.g. a datatype ECSV does not allow: a damaged header, not a multi-line warning
+        if "datatype" in str(w.message):
+            msg = str(w.message).split(" Using anyway")[0].strip()
+            raise ValueError(f"cannot read ECSV model file {path}: {msg}")
     t = Table(t, masked=False, copy=False) if not t.has_masked_columns else t
     seen = {}
     for name in t.colnames:
