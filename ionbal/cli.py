@@ -81,9 +81,9 @@ def add_molecule_options(parser: argparse.ArgumentParser) -> None:
     g = parser.add_argument_group("molecules")
     g.add_argument("--no-molecules", action="store_true",
                    help="atoms and atomic ions only (the default for now)")
-    g.add_argument("--molecules", default=None, metavar="LIST",
-                   help="solve molecules with the ions: 'all' (every tabulated molecule the mixture can form) "
-                        "or a list of formulas, e.g. CO,H2O,H2,H2+")
+    g.add_argument("--molecules", default=None, nargs="?", const="all", metavar="LIST",
+                   help="solve molecules with the ions: 'all' (every tabulated molecule the mixture can form; "
+                        "also --molecules alone) or a list of formulas, e.g. CO,H2O,H2,H2+")
 
 
 def molecules_from_args(args: argparse.Namespace):
@@ -147,7 +147,7 @@ def _cmd_state(args: argparse.Namespace) -> int:
         from .io.tablefile import write_text_table
         from .validity import bitmask
 
-        species = [s for el in (elements or mix.elements) for s in result.stages(el)]
+        species = [s for el in (elements or mix.elements) for s in result.stages(el)] + list(result.molecules)
         table = result.to_table(species=species)
         table["validity"] = np.atleast_1d(bitmask(result.validity)).astype(np.uint8)
         table.meta["ionbal_command"] = _command_line()

@@ -39,7 +39,7 @@ from .io.atomic import atomic_output
 from .io.formats import format_of
 from .io.models import MODEL_UNITS, parse_column_map, read_model, resolve_columns
 from .io.models import canonical_column_name as _canon
-from .io.provenance import data_sources
+from .io.provenance import assumptions, data_sources, molecules_record
 from .io.tablefile import write_table_file, write_text_table
 from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit, species_column_name, unit_of_astropy
 from .selection import resolve_species
@@ -426,6 +426,7 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
         t = result.table.copy(copy_data=False)
         t.meta.update(meta_extra)
         t.meta["ionbal_data_sources"] = {k: v.get("title", "") for k, v in data_sources().items()}
+        t.meta["ionbal_physics"] = assumptions(result.molecules)
         for c in result.comparisons:
             t.meta[f"ionbal_comparison_{c.quantity}"] = c.summary()
         with atomic_output(path, overwrite=overwrite) as tmp:
@@ -445,6 +446,8 @@ def write_column(result: ColumnResult, path, *, overwrite: bool = False, command
         "history": f"{command or 'ionbal.column.write_column'} (ionbal {__version__})",
         "state_variable": result.state_variable,
         "mixture_name": result.mixture_name,
+        "ionbal_molecules": molecules_record(result.molecules),
+        "comment": assumptions(result.molecules),
     }
     for c in result.comparisons:
         attrs[f"comparison_{c.quantity}"] = c.summary()
@@ -458,8 +461,16 @@ def _write_text_table(result: ColumnResult, path: Path, fmt: str, *, overwrite: 
     comments = [f"ionbal {meta_extra['ionbal_version']}: LTE ionization balance of a model-atmosphere column",
                 f"command: {meta_extra['ionbal_command']}",
                 f"mixture: {result.mixture_name}; state input: {result.state_variable}",
+                _molecules_line(result.molecules),
                 *[c.summary() for c in result.comparisons]]
     write_text_table(result.table, path, fmt, overwrite=overwrite, comments=comments)
+
+
+def _molecules_line(molecules) -> str:
+    """The comment line of text files on the molecule choice."""
+    if not molecules:
+        return "molecules: none (atoms and atomic ions only)"
+    return f"molecules: {len(molecules)} solved with the ions (number_density_<formula> columns)"
 
 
 def _unit_string(unit) -> str:

@@ -25,7 +25,7 @@ from .core.solver import (
 )
 from .data.mixture import Mixture
 from .data.pack import PackedMixture
-from .data.molecules import known_molecules, parse_molecule
+from .data.molecules import molecule_or_none, parse_molecule
 from .data.species import parse_species
 from .quantities import POINT_OUTPUTS, QUANTITIES, SolvedState, astropy_unit, species_column_name
 from .selection import resolve_species
@@ -234,24 +234,14 @@ class IonizationResult:
                              f"'{el} II', or use fractions('{el}') for all its stages")
         return parse_species(species)
 
-    @staticmethod
-    def _as_molecule(species):
-        """The :class:`~ionbal.data.molecules.Molecule` a name means, or None for an atomic species."""
-        if getattr(species, "is_molecule", False):
-            return species
-        if not isinstance(species, str):
-            return None
-        try:
-            parse_species(species)
-            return None
-        except ValueError:
-            pass
-        try:
-            m = parse_molecule(species)
-        except ValueError:
-            return None
-        # only a tabulated molecule: "FeII" is a misspelt stage, not Fe + I2
-        return m if m in known_molecules() else None
+    def _as_molecule(self, species):
+        """The :class:`~ionbal.data.molecules.Molecule` a name means, or None for an atomic species.
+
+        A few molecular-ion formulas read as atomic ions too ("C2+" is C III in the atomic
+        notation, and the C2+ molecule); where both are in the solve, the name is refused as
+        ambiguous (write "C III", or "C2^+" for the molecule).
+        """
+        return molecule_or_none(species, self.molecules)
 
     def _molecule_column(self, m) -> np.ndarray:
         """Number density [cm^-3] of one molecule of the solve, flat."""
@@ -455,17 +445,32 @@ class IonizationResult:
         return self._out(n * K_B * self._plain("temperature"), "partial_pressure")
 
     def number_densities(self, species, fractions: np.ndarray | None = None) -> np.ndarray:
-        """Number densities of many species [cm^-3], shape ``(len(species), *shape)``.
+        """Number densities of many species and molecules [cm^-3], shape ``(len(species), *shape)``.
 
-        ``fractions`` (the :meth:`species_fractions` of the same species) saves computing them again.
+        Atomic species (``"Fe II"``, ``"H-"``) and molecules of the solve (``"CO"``, ``"H2+"``)
+        may be mixed.  ``fractions`` (the :meth:`species_fractions` of the same atomic species, in
+        the same order, without the molecules) saves computing them again.
         """
-        names = [self._species(s) for s in species]
-        frac = self.species_fractions(names) if fractions is None else fractions
+        kinds = [(self._as_molecule(s), s) for s in species]
+        atoms = [self._species(s) for m, s in kinds if m is None]
+        if fractions is None:
+            frac = self.species_fractions(atoms) if atoms else np.empty((0,) + self.shape)
+        else:
+            frac = np.asarray(fractions)
+            if frac.shape[0] != len(atoms):
+                raise ValueError(f"fractions has {frac.shape[0]} row(s) but {len(atoms)} atomic species were "
+                                 "named; pass the species_fractions of the atomic species only")
         nuclei = self._plain("nuclei_density")
-        out = np.empty((len(names),) + self.shape)
+        out = np.empty((len(kinds),) + self.shape)
+        k_atom = 0
         with np.errstate(under="ignore", over="ignore", invalid="ignore"):
-            for k, sp in enumerate(names):
-                out[k] = frac[k] * nuclei * self._weight(sp)
+            for k, (m, _) in enumerate(kinds):
+                if m is None:
+                    sp = atoms[k_atom]
+                    out[k] = frac[k_atom].reshape(self.shape) * nuclei * self._weight(sp)
+                    k_atom += 1
+                else:
+                    out[k] = self._molecule_column(m).reshape(self.shape)
         return self._out(out, "number_density")
 
     def mean_charge(self, element) -> np.ndarray:
@@ -482,7 +487,10 @@ class IonizationResult:
 
         Summed in the core (:func:`ionbal.core.solver.ion_moments_many`) over the populated stages
         of each element, without building any fraction array; ``use_kernel=False`` sums the
-        public :meth:`fractions` instead (slower; for checks).
+        public :meth:`fractions` instead (slower; for checks).  With molecules the stage fractions
+        are of the element's nuclei (the molecules' share taken out) and the molecular ions
+        (H2+, H2-, HeH+, ...) count as charged particles of their charge, per nucleus
+        ``n(molecule) / n_nuclei``: at 20,000 K and 1e12 dyn cm^-2 they hold most of the charge.
         """
         if use_kernel and self._chem is None:  # the kernel knows free atoms only, not the molecules' share
             if self._moments is None:
@@ -509,9 +517,45 @@ class IonizationResult:
                 if qk > 0:
                     s_q53 = s_q53 + we * qk ** (5.0 / 3.0) * fr[k]
                     s_pos = s_pos + we * fr[k]
+        if self._chem is not None:
+            nn = self._plain("nuclei_density")
+            for m in self._chem.molecules.molecules:
+                if m.charge == 0:
+                    continue
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    per = self._molecule_column(m).reshape(self.shape) / nn
+                s_q2 = s_q2 + m.charge * m.charge * per
+                if m.charge > 0:
+                    s_q53 = s_q53 + m.charge ** (5.0 / 3.0) * per
+                    s_pos = s_pos + per
         return s_q2, s_q53, s_pos
 
     # -- tables ------------------------------------------------------------------------------------
+    def _table_species(self, species) -> tuple[tuple, tuple]:
+        """``species`` of :meth:`to_table` as (atomic species, molecules), each list in canonical labels.
+
+        ``"default"`` and ``"all"`` add every molecule of the solve; molecules may be named among
+        the species (``"Fe II,CO"``, ``["H I", "H2"]``).
+        """
+        if species is None:
+            return (), ()
+        if isinstance(species, str) and species.strip().lower() in ("default", "all"):
+            return resolve_species(self.mixture, species), self.molecules
+        items = [s for s in species.split(",")] if isinstance(species, str) else list(species)
+        mols, atoms, seen = [], [], set()
+        for item in items:
+            m = self._as_molecule(item.strip() if isinstance(item, str) else item)
+            if m is None:
+                atoms.append(item)
+                continue
+            label = str(m)
+            if label in seen:
+                raise ValueError(f"molecule {label} is listed more than once")
+            self._molecule_column(m)  # a molecule outside the solve: the error that names the remedy
+            seen.add(label)
+            mols.append(label)
+        return (resolve_species(self.mixture, atoms) if atoms else ()), tuple(mols)
+
     def to_table(self, species=None, *, partial_pressures: bool = False):
         """An astropy QTable of the state (0-D and 1-D results only), in cgs units.
 
@@ -519,27 +563,29 @@ class IonizationResult:
         ----------
         species : "default", "all", a name, a comma-separated list or an iterable of names, optional
             Species whose fractions and number densities to add as columns
-            (``"default"``: stages I-III of every element and H-; ``"all"``: every stage).
+            (``"default"``: stages I-III of every element and H-; ``"all"``: every stage; both
+            with every molecule of the solve).  Molecules (``"CO"``, ``"H2+"``) get a number
+            density column (and a partial pressure), no fraction.
         partial_pressures : bool
             Also add the partial pressure of each of these species.
 
         Columns are named as in ``ionbal column`` files: ``electron_density``, ...,
-        ``fraction_Fe_II``, ``number_density_Fe_II``, ``partial_pressure_Fe_II``
-        (:func:`ionbal.quantities.species_column_name`).
+        ``fraction_Fe_II``, ``number_density_Fe_II``, ``partial_pressure_Fe_II``,
+        ``number_density_CO`` (:func:`ionbal.quantities.species_column_name`).
         """
         from astropy.table import QTable
 
         if len(self.shape) > 1:
             raise ValueError(f"to_table() needs a 0-D or 1-D result; this one has shape {self.shape}")
-        names = () if species is None else resolve_species(self.mixture, species)
+        names, mols = self._table_species(species)
         t = QTable()
         t["temperature"] = np.atleast_1d(self._plain("temperature")) * astropy_unit("temperature")
         for name in POINT_OUTPUTS:
             t[name] = np.atleast_1d(self._plain(name)) * astropy_unit(name)
+        kT = K_B * np.atleast_1d(self._plain("temperature"))
         if names:
             frac = self.species_fractions(names).reshape(len(names), -1)
             nuclei = np.atleast_1d(self._plain("nuclei_density"))
-            kT = K_B * np.atleast_1d(self._plain("temperature"))
             for k, name in enumerate(names):
                 t[species_column_name("fraction", name)] = frac[k]
             for k, name in enumerate(names):
@@ -549,10 +595,17 @@ class IonizationResult:
                 for k, name in enumerate(names):
                     dens = frac[k] * nuclei * self._weight(self._species(name))
                     t[species_column_name("partial_pressure", name)] = dens * kT * astropy_unit("partial_pressure")
+        dens_m = [np.atleast_1d(self._molecule_column(parse_molecule(m))) for m in mols]
+        for name, dens in zip(mols, dens_m):
+            t[species_column_name("number_density", name)] = dens * astropy_unit("number_density")
+        if partial_pressures:
+            for name, dens in zip(mols, dens_m):
+                t[species_column_name("partial_pressure", name)] = dens * kT * astropy_unit("partial_pressure")
         t["status"] = np.atleast_1d(self._plain("status"))
         t["iterations"] = np.atleast_1d(self._plain("iterations"))
         t.meta["mixture"] = self.mixture.name
         t.meta["state_variable"] = self.state_variable
+        t.meta["molecules"] = list(self.molecules)
         return t
 
     def __repr__(self) -> str:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .core.constants import K_B
 from .quantities import POINT_OUTPUTS, QUANTITIES, unit_text
 
 __all__ = ["format_state", "state_record"]
@@ -65,11 +66,31 @@ def _molecule_lines(result) -> list[str]:
         return ["  molecules        not included (atoms and atomic ions only)"]
     top = _top_molecules(result)
     nn = float(np.asarray(result.nuclei_density))
+    kT = K_B * float(np.asarray(result.temperature))
     lines = [f"  molecules        {len(result.molecules)} included; the most abundant (number density, "
-             "per nucleus):"]
+             "partial pressure, per nucleus):"]
     for label, n in top:
-        lines.append(f"    {label:<10} {n:.4e} cm^-3  {n / nn:.3e}")
+        lines.append(f"    {label:<10} {n:.4e} cm^-3  {n * kT:.4e} dyn cm^-2  {n / nn:.3e}")
     return lines
+
+
+def _molecule_shares(result, el) -> dict[str, float]:
+    """Shares of an element's nuclei held by each molecule (the molecule part of its element budget)."""
+    if not result.molecules:
+        return {}
+    stages = set(result.stages(el))
+    return {label: float(np.asarray(v)) for label, v in result.element_budget(el).items() if label not in stages}
+
+
+def _budget_text(result, el, min_fraction: float) -> str:
+    """`` in molecules 0.74 (H2 0.74, ...)`` for an element's line, or '' when molecules hold less."""
+    shares = _molecule_shares(result, el)
+    total = sum(shares.values())
+    if not shares or not total >= min_fraction:
+        return ""
+    top = sorted(((v, k) for k, v in shares.items() if v >= min_fraction), reverse=True)[:3]
+    inner = ", ".join(f"{k} {_fmt_fraction(v)}" for v, k in top)
+    return f"  | in molecules {_fmt_fraction(total)}" + (f" ({inner})" if inner else "")
 
 
 def state_record(result, *, elements=None) -> dict:
@@ -100,11 +121,21 @@ def state_record(result, *, elements=None) -> dict:
         "fractions": {},
         "molecules": {label: n for label, n in _top_molecules(result, len(result.molecules))
                       if n > 0.0},
+        "molecule_partial_pressures": {},
+        "in_molecules": {},
     }
+    kT = K_B * rec["temperature"]
+    rec["molecule_partial_pressures"] = {label: n * kT for label, n in rec["molecules"].items()}
+    rec["units"].update({"molecules": QUANTITIES["number_density"].unit,
+                         "molecule_partial_pressures": QUANTITIES["partial_pressure"].unit})
     for el in (elements or r.mixture.elements):
         names = r.stages(el)
         fr = np.asarray(r.fractions(el)).reshape(len(names))
         rec["fractions"].update({n: float(x) for n, x in zip(names, fr)})
+        shares = _molecule_shares(r, el)
+        if shares:
+            rec["in_molecules"][el] = {"total": sum(shares.values()),
+                                       **{k: v for k, v in sorted(shares.items(), key=lambda kv: -kv[1]) if v > 0}}
     return rec
 
 
@@ -126,12 +157,16 @@ def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
         *_validity_lines(r),
         *_molecule_lines(r),
         "",
-        f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g})",
+        f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g}; of the element's "
+        "nuclei" + ("; the rest is in molecules)" if r.molecules else ")"),
     ]
     for el in (elements or mix.elements):
         names = r.stages(el)
         fr = np.asarray(r.fractions(el)).reshape(len(names))
         dom = names[int(np.argmax(fr))]
+        shares = _molecule_shares(r, el)
+        if shares and max(shares.values()) > float(np.max(fr)):
+            dom = max(shares, key=shares.get)  # most of the element is in one molecule (C in CO)
         shown = [f"{n} {_fmt_fraction(x)}" for n, x in zip(names, fr) if x >= min_fraction]
-        lines.append(f"  {el:<8} {dom:<10} " + "  ".join(shown))
+        lines.append((f"  {el:<8} {dom:<10} " + "  ".join(shown) + _budget_text(r, el, min_fraction)).rstrip())
     return "\n".join(lines)

@@ -12,6 +12,15 @@ The LTE assumption itself is not assessed here: it fails at *low* densities
 (chromospheres, winds, nebulae), where none of these flags is raised; see the
 cautions in the README.
 
+With molecules (``solve(..., molecules=True)``) the parameters are computed from
+the molecular solution: stage fractions are fractions of each element's nuclei
+(the molecules' share taken out), the molecular ions (H2+, H2-, HeH+, ...) are
+charged particles of the Debye sum and of ⟨q^{5/3}⟩, and every nucleus, free or
+bound in a molecule, counts in ``pressure_ionization``.  Condensation (grains,
+below about 2,000 K at high pressure) is not assessed: ionbal's data sources
+carry no condensed phases (the NIST-JANAF files it reads are gas-phase only), so
+there is no saturation test and no flag; see the README caution.
+
 Parameters and thresholds (cgs; e elementary charge, k Boltzmann constant)
 -----------------------------------------------------------------------------
 ``degenerate``: electron degeneracy, parameter ``n_e λ_e³``

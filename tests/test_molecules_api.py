@@ -135,3 +135,78 @@ def test_mask_keeps_status_codes():
     assert np.isnan(r.number_density("CO")[1:]).all()
     with pytest.raises(ValueError):
         solve(np.array([3000.0, -1.0]), gas_pressure=1e5, molecules=True)
+
+
+def test_number_densities_and_tables_take_molecules():
+    r = solve(np.array([2500.0, 3000.0, 4000.0]), gas_pressure=1e5, molecules=True)
+    names = ["H I", "CO", "Fe II", "H2+", "H2O"]
+    nd = r.number_densities(names)
+    for k, name in enumerate(names):
+        np.testing.assert_array_equal(nd[k], r.number_density(name), err_msg=name)
+    t = r.to_table("Fe II,CO,H2", partial_pressures=True)
+    np.testing.assert_array_equal(np.asarray(t["number_density_CO"].value), r.number_density("CO"))
+    np.testing.assert_allclose(np.asarray(t["partial_pressure_H2"].value), r.partial_pressure("H2"), rtol=1e-15)
+    assert "fraction_CO" not in t.colnames and "fraction_Fe_II" in t.colnames
+    full = r.to_table("default")
+    from ionbal.quantities import species_column_name
+
+    assert all(species_column_name("number_density", m) in full.colnames for m in r.molecules)
+    assert full.meta["molecules"] == list(r.molecules)
+    sub = solve(3000.0, gas_pressure=1e5, molecules=["CO"])
+    with pytest.raises(ValueError, match="not part of this solve"):
+        sub.to_table(["H I", "H2O"])
+    with pytest.raises(ValueError, match="not part of this solve"):
+        sub.number_densities(["H I", "H2O"])
+    with pytest.raises(ValueError, match="more than once"):
+        sub.to_table(["CO", "CO"])
+
+
+def test_validity_counts_the_molecular_ions():
+    """The Debye sum n_e + sum n_j q_j^2 (Debye & Hueckel 1923) holds every charged particle.
+
+    At 20,000 K and 1e12 dyn cm^-2 the molecular ions (H2+, H2-, HeH+) hold much of the charge;
+    the parameter computed by ionbal.validity must equal the one summed here from the public
+    number densities of every stage and every molecule.
+    """
+    import math
+
+    from ionbal.core.constants import E_CHARGE
+
+    r = solve(20000.0, gas_pressure=1e12, molecules=True)
+    T = float(r.temperature)
+    ne = float(r.electron_density)
+    sq = 0.0
+    for el in r.mixture.elements:
+        for sp in r.stages(el):
+            q = r._species(sp).charge
+            if q:
+                sq += q * q * float(r.number_density(sp))
+    from ionbal.data.molecules import parse_molecule
+
+    mol_q = 0.0
+    for m in r.molecules:
+        q = parse_molecule(m).charge
+        if q:
+            mol_q += q * q * float(r.number_density(parse_molecule(m)))
+    assert mol_q > 0.1 * sq  # the molecular ions matter here
+    lam = math.sqrt(K_B * T / (4 * math.pi * E_CHARGE**2 * (ne + sq + mol_q)))
+    v = r.validity
+    assert float(v.debye_parameter) == pytest.approx(E_CHARGE**2 / (lam * K_B * T), rel=1e-10)
+    assert bool(v.debye_lowering) and bool(v.pressure_ionization)
+
+
+def test_molecular_ion_names_that_read_as_atomic_ions():
+    """"C2+" is C III in the atomic notation (common practice) and the C2+ molecular ion (B&C 2016)."""
+    r = solve(20000.0, gas_pressure=1e12, molecules=True)
+    assert "C2+" in r.molecules and "He2+" in r.molecules
+    with pytest.raises(ValueError, match="ambiguous.*'C III'.*'C2\\^\\+'"):
+        r.number_density("C2+")
+    assert float(r.number_density("C III")) == float(r.fraction("C III") * r.nuclei_density * r._weight(
+        r._species("C III")))
+    from ionbal.data.molecules import parse_molecule
+
+    np.testing.assert_array_equal(r.number_density("C2^+"), r.molecule_densities(["C2+"])[0])
+    np.testing.assert_array_equal(r.number_density(parse_molecule("He2+")), r.molecule_densities(["He2+"])[0])
+    # without that molecule in the solve the atomic reading stands
+    a = solve(20000.0, gas_pressure=1e12, molecules=["CO"])
+    assert float(a.number_density("C2+")) == float(a.number_density("C III"))

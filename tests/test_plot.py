@@ -291,6 +291,11 @@ def budget_by_hand(r):
         charges = [-1 if s == "H-" else i - (1 if stages[0] == "H-" else 0) for i, s in enumerate(stages)]
         q = np.tensordot(np.asarray(charges, dtype=float), r.fractions(el), axes=1)
         contrib[el] = w * q
+    if r.molecules:  # charge conservation counts the molecular ions too (H2+ +1, H2- -1, ...)
+        from ionbal.data.molecules import parse_molecule
+
+        contrib["molecular ions"] = sum(parse_molecule(m).charge * r.molecule_densities([m])[0]
+                                        for m in r.molecules if parse_molecule(m).charge) / r.nuclei_density
     total = sum(contrib.values())
     return {el: c / total for el, c in contrib.items()}, total
 

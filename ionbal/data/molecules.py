@@ -27,7 +27,7 @@ from ..core.molecules import MoleculeArrays
 from ..core.constants import K_B_EV
 from .elements import SYMBOLS, atomic_number
 
-__all__ = ["Molecule", "parse_molecule", "known_molecules", "MoleculeTable", "molecule_table",
+__all__ = ["Molecule", "parse_molecule", "molecule_or_none", "known_molecules", "MoleculeTable", "molecule_table",
            "PackedMolecules", "pack_molecules"]
 
 _TOKEN = re.compile(r"([A-Z][a-z]?)(\d*)")
@@ -113,6 +113,40 @@ def parse_molecule(text) -> Molecule:
     if known is not None:
         return known
     return Molecule(comp, q, _hill_label(comp, q))
+
+
+def molecule_or_none(name, solved=()) -> "Molecule | None":
+    """The tabulated :class:`Molecule` a species name means, or None for an atomic species.
+
+    A name that reads as an atomic species is the atomic species ("Fe II", "H-"), unless it is
+    also the label of a molecule among ``solved`` (labels): "C2+" is C III in the atomic
+    notation and the C2+ molecular ion; then the name is refused as ambiguous, naming both
+    spellings ("C III" for the ion, "C2^+" for the molecule).  Untabulated formulas are not
+    molecules ("FeII" is a misspelt stage, not Fe + I2).
+    """
+    from .species import parse_species
+
+    if getattr(name, "is_molecule", False):
+        return name
+    if not isinstance(name, str):
+        return None
+    try:
+        atom = parse_species(name)
+    except ValueError:
+        atom = None
+    try:
+        m = parse_molecule(name)
+    except ValueError:
+        return None
+    if m not in known_molecules():
+        return None
+    if atom is None:
+        return m
+    if str(m) in solved and name.strip() == str(m):
+        body = str(m).rstrip("+-")
+        raise ValueError(f"{name!r} is ambiguous: the atomic ion {atom} or the molecular ion {m}; write "
+                         f"'{atom}' for the ion or '{body}^{str(m)[len(body):]}' for the molecule")
+    return None
 
 
 class MoleculeTable(NamedTuple):

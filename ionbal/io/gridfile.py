@@ -21,7 +21,7 @@ from .netcdf import (
     _validity_attrs,
     _variable,
 )
-from .provenance import ASSUMPTIONS as _ASSUMPTIONS
+from .provenance import assumptions, molecules_record
 from .provenance import _history, _references_text, data_sources
 
 __all__ = ["write_grid_file"]
@@ -144,13 +144,14 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
         f.attrs["source"] = f"ionbal {__version__}"
         f.attrs["history"] = _history(command)
         f.attrs["references"] = _references_text(sources)
-        f.attrs["comment"] = (_ASSUMPTIONS + " Default species: stages I-III of every element of the mixture "
-                              "plus H-. Failed points (status != 0) hold NaN.")
+        f.attrs["comment"] = (assumptions(molecules) + " Default species: stages I-III of every element of the "
+                              "mixture plus H-. Failed points (status != 0) hold NaN.")
         f.attrs["ionbal_version"] = __version__
         f.attrs["ionbal_file_type"] = FILE_TYPE_GRID
         f.attrs["ionbal_format_version"] = np.int32(FORMAT_VERSION)
         f.attrs["state_variable"] = sv
         f.attrs["mixture_name"] = mix.name
+        f.attrs["ionbal_molecules"] = molecules_record(molecules)
         f.attrs["data_sources"] = json.dumps(sources, sort_keys=True)
         f.attrs["ionbal_grid_spec"] = json.dumps(spec.to_dict(), sort_keys=True)
         f.attrs["ionbal_complete"] = np.int8(0)

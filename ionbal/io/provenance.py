@@ -10,7 +10,7 @@ from typing import Any, Mapping
 
 from .._version import __version__
 
-__all__ = ["data_sources", "history", "references_text", "ASSUMPTIONS"]
+__all__ = ["data_sources", "history", "references_text", "ASSUMPTIONS", "assumptions", "molecules_record"]
 
 
 @lru_cache(maxsize=1)
@@ -108,6 +108,22 @@ def _history(command: str | None) -> str:
 
 _ASSUMPTIONS = ("LTE ionization balance (Saha equation for every stage, H- included) with charge and "
                 "nuclei conservation; ideal, non-degenerate gas; atoms and atomic ions only (no molecules).")
+
+
+def assumptions(molecules=()) -> str:
+    """The physics of a file in one sentence: atoms-only (no ``molecules``) or with the molecules named."""
+    if not molecules:
+        return _ASSUMPTIONS
+    return ("LTE ionization balance (Saha equation for every stage, H- included) solved together with the "
+            f"dissociation equilibria of {len(molecules)} gas-phase molecules and molecular ions "
+            "(Barklem & Collet 2016; NIST-JANAF, Chase 1998), with charge and nuclei conservation; ideal, "
+            "non-degenerate gas; no condensation (dust).")
+
+
+def molecules_record(molecules=()) -> str:
+    """What files store about the molecule choice: JSON ``{"molecules": bool, "solved": [labels]}``."""
+    labels = [str(m) for m in (molecules or ())]
+    return json.dumps({"molecules": bool(labels), "solved": labels})
 
 
 history = _history

@@ -249,20 +249,10 @@ class GridFile:
 
     def _molecule_index(self, species):
         """Index of a molecule in the ``molecule`` coordinate, or None for an atomic species."""
-        from ..data.molecules import known_molecules, parse_molecule
-        from ..data.species import parse_species
+        from ..data.molecules import molecule_or_none
 
-        if isinstance(species, str):
-            try:
-                parse_species(species)
-                return None
-            except ValueError:
-                pass
-        try:
-            m = parse_molecule(species)
-        except ValueError:
-            return None
-        if m not in known_molecules():
+        m = molecule_or_none(species, self.molecules)  # "C2+" both C III and a molecule: refused as ambiguous
+        if m is None:
             return None
         name = str(m)
         if name not in self.molecules:
@@ -379,11 +369,11 @@ class GridFile:
 
     def interpolate_number_density(self, species, temperature, state, *, metallicity=None, alpha=None,
                                    method: str = "linear") -> np.ndarray:
-        """Interpolate the number density [cm^-3] of one species (see :meth:`interpolate`)."""
-        k = self._species_index(species)
+        """Interpolate the number density [cm^-3] of one species or molecule (``"CO"``; see :meth:`interpolate`)."""
+        m = self._molecule_index(species)
+        label = self.molecules[m] if m is not None else self.species[self._species_index(species)]
         q = self._query(temperature, state, metallicity, alpha)
-        return self._interp_field(f"number_density {self.species[k]}", lambda: self.number_density(species), q,
-                                  method)
+        return self._interp_field(f"number_density {label}", lambda: self.number_density(species), q, method)
 
     # -- lifecycle ------------------------------------------------------------------------------
     def close(self) -> None:

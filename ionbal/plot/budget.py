@@ -23,6 +23,23 @@ from .fractions import (
 # electron donors
 # ---------------------------------------------------------------------------------------------------
 
+#: the label of the molecular ions' share in :func:`electron_shares` (H2+, HeH+ give electrons; H2- binds them)
+MOLECULAR_IONS = "molecular ions"
+
+
+def _molecular_ion_charge(result):
+    """Net charge of the molecular ions per nucleus, or None for a result without charged molecules."""
+    from ..data.molecules import parse_molecule
+
+    charged = [parse_molecule(m) for m in getattr(result, "molecules", ()) if parse_molecule(m).charge]
+    if not charged:
+        return None
+    dens = np.asarray(result.molecule_densities(charged), dtype=np.float64)
+    q = np.array([m.charge for m in charged], dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.tensordot(q, dens, axes=1) / np.asarray(result.nuclei_density, dtype=np.float64)
+
+
 def electron_shares(result, elements=None) -> dict[str, np.ndarray]:
     """Share of the free electrons given by each element, from a result's mean charges.
 
@@ -30,7 +47,8 @@ def electron_shares(result, elements=None) -> dict[str, np.ndarray]:
     of element X among all nuclei and ``<q>_X`` its mean charge per nucleus
     (:meth:`IonizationResult.mean_charge`; H- counts -1, so hydrogen's share
     is net of the electrons H- binds).  By charge conservation the denominator
-    times the nuclei density is n_e.  A stopgap until results carry their own
+    times the nuclei density is n_e.  With molecules the molecular ions' net charge is one more
+    entry, ``"molecular ions"`` (:data:`MOLECULAR_IONS`; listed when ``elements`` is None).  A stopgap until results carry their own
     electron budget; the plot takes any mapping of this form.
     """
     mix = result.mixture
@@ -40,6 +58,11 @@ def electron_shares(result, elements=None) -> dict[str, np.ndarray]:
     if missing:
         raise ValueError(f"element(s) {', '.join(missing)} not in the mixture {mix.name}")
     contrib = {e: weights[e] * np.asarray(result.mean_charge(e), dtype=np.float64) for e in mix.elements}
+    ions = _molecular_ion_charge(result)
+    if ions is not None:
+        contrib[MOLECULAR_IONS] = ions
+        if elements is None:
+            names.append(MOLECULAR_IONS)
     total = sum(contrib.values())
     with np.errstate(divide="ignore", invalid="ignore"):
         return {e: contrib[e] / total for e in names}
