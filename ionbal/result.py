@@ -27,8 +27,7 @@ from .data.mixture import Mixture
 from .data.pack import PackedMixture
 from .data.molecules import molecule_or_none, parse_molecule
 from .data.species import parse_species
-from .quantities import POINT_OUTPUTS, QUANTITIES, SolvedState, astropy_unit, species_column_name
-from .selection import resolve_species
+from .quantities import POINT_OUTPUTS, QUANTITIES, SolvedState, astropy_unit
 
 __all__ = ["IonizationResult"]
 
@@ -531,31 +530,6 @@ class IonizationResult:
         return s_q2, s_q53, s_pos
 
     # -- tables ------------------------------------------------------------------------------------
-    def _table_species(self, species) -> tuple[tuple, tuple]:
-        """``species`` of :meth:`to_table` as (atomic species, molecules), each list in canonical labels.
-
-        ``"default"`` and ``"all"`` add every molecule of the solve; molecules may be named among
-        the species (``"Fe II,CO"``, ``["H I", "H2"]``).
-        """
-        if species is None:
-            return (), ()
-        if isinstance(species, str) and species.strip().lower() in ("default", "all"):
-            return resolve_species(self.mixture, species), self.molecules
-        items = [s for s in species.split(",")] if isinstance(species, str) else list(species)
-        mols, atoms, seen = [], [], set()
-        for item in items:
-            m = self._as_molecule(item.strip() if isinstance(item, str) else item)
-            if m is None:
-                atoms.append(item)
-                continue
-            label = str(m)
-            if label in seen:
-                raise ValueError(f"molecule {label} is listed more than once")
-            self._molecule_column(m)  # a molecule outside the solve: the error that names the remedy
-            seen.add(label)
-            mols.append(label)
-        return (resolve_species(self.mixture, atoms) if atoms else ()), tuple(mols)
-
     def to_table(self, species=None, *, partial_pressures: bool = False):
         """An astropy QTable of the state (0-D and 1-D results only), in cgs units.
 
@@ -573,40 +547,9 @@ class IonizationResult:
         ``fraction_Fe_II``, ``number_density_Fe_II``, ``partial_pressure_Fe_II``,
         ``number_density_CO`` (:func:`ionbal.quantities.species_column_name`).
         """
-        from astropy.table import QTable
+        from .result_table import result_table
 
-        if len(self.shape) > 1:
-            raise ValueError(f"to_table() needs a 0-D or 1-D result; this one has shape {self.shape}")
-        names, mols = self._table_species(species)
-        t = QTable()
-        t["temperature"] = np.atleast_1d(self._plain("temperature")) * astropy_unit("temperature")
-        for name in POINT_OUTPUTS:
-            t[name] = np.atleast_1d(self._plain(name)) * astropy_unit(name)
-        kT = K_B * np.atleast_1d(self._plain("temperature"))
-        if names:
-            frac = self.species_fractions(names).reshape(len(names), -1)
-            nuclei = np.atleast_1d(self._plain("nuclei_density"))
-            for k, name in enumerate(names):
-                t[species_column_name("fraction", name)] = frac[k]
-            for k, name in enumerate(names):
-                dens = frac[k] * nuclei * self._weight(self._species(name))
-                t[species_column_name("number_density", name)] = dens * astropy_unit("number_density")
-            if partial_pressures:
-                for k, name in enumerate(names):
-                    dens = frac[k] * nuclei * self._weight(self._species(name))
-                    t[species_column_name("partial_pressure", name)] = dens * kT * astropy_unit("partial_pressure")
-        dens_m = [np.atleast_1d(self._molecule_column(parse_molecule(m))) for m in mols]
-        for name, dens in zip(mols, dens_m):
-            t[species_column_name("number_density", name)] = dens * astropy_unit("number_density")
-        if partial_pressures:
-            for name, dens in zip(mols, dens_m):
-                t[species_column_name("partial_pressure", name)] = dens * kT * astropy_unit("partial_pressure")
-        t["status"] = np.atleast_1d(self._plain("status"))
-        t["iterations"] = np.atleast_1d(self._plain("iterations"))
-        t.meta["mixture"] = self.mixture.name
-        t.meta["state_variable"] = self.state_variable
-        t.meta["molecules"] = list(self.molecules)
-        return t
+        return result_table(self, species, partial_pressures=partial_pressures)
 
     def __repr__(self) -> str:
         n = int(np.prod(self.shape, dtype=np.int64))
