@@ -176,14 +176,14 @@ def _compile_note(args: argparse.Namespace | None = None, *, points: int = 1) ->
         return
     from .api import SERIAL_POINTS
     from .core.config import needs_compiling
-    from .core.solver import ion_moments_many, log_fractions_many, solve_few, solve_many
+    from .core.solver import ion_moments_many, log_fractions_many, solve_few, solve_many, tile_outputs_many
 
     driver = solve_few if points <= SERIAL_POINTS else solve_many
     if args is None or molecules_from_args(args) is not False:  # the joint kernel holds its own solve_few
         from .core.chem import chem_solve_few, chem_solve_many
 
         driver = chem_solve_few if points <= SERIAL_POINTS else chem_solve_many
-    if needs_compiling(driver, log_fractions_many, ion_moments_many):
+    if needs_compiling(driver, log_fractions_many, ion_moments_many, tile_outputs_many):
         print("ionbal: compiling kernels (first run only; about half a minute, cached afterwards)",
               file=sys.stderr, flush=True)
 
@@ -374,8 +374,8 @@ def _add_grid_command(sub) -> None:
     out.add_argument("--float32", action="store_true",
                      help="store the ion-fraction and number-density cubes in single precision")
     out.add_argument("--no-validity", action="store_true",
-                     help="do not store the per-point validity flags (ionbal.validity); saves about a third of "
-                          "the time")
+                     help="do not store the per-point validity flags (ionbal.validity); they come from the same "
+                          "core pass as the fractions, so this saves little time")
     out.add_argument("--overwrite", action="store_true",
                      help="replace an existing output file (it is kept until the new one is complete)")
     run = p.add_argument_group("running")
