@@ -234,7 +234,7 @@ def grid_spec_from_args(args: argparse.Namespace):
         mixture = mixture_from_args(args)
         return GridSpec(temperature, state, mixture, species=_species_arg(args),
                         number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
-                        validity=not args.no_validity, molecules=molecules_from_args(args))
+                        validity=not args.no_validity, molecules=molecules_from_args(args), thermo=args.thermo)
     if m_axis is not None and args.metallicity:
         raise CLIError("give [M/H] either as --metallicity or as --metallicity-axis, not both")
     if a_axis is not None and args.alpha:
@@ -246,7 +246,7 @@ def grid_spec_from_args(args: argparse.Namespace):
     return GridSpec(temperature, state, base, metallicity=metallicity, alpha=alpha,
                     overrides=_parse_overrides(args.abundance), species=_species_arg(args),
                     number_densities=args.number_densities, float32=args.float32, tile_size=args.tile_size,
-                    validity=not args.no_validity, molecules=molecules_from_args(args))
+                    validity=not args.no_validity, molecules=molecules_from_args(args), thermo=args.thermo)
 
 
 def _species_arg(args: argparse.Namespace):
@@ -319,7 +319,7 @@ def _cmd_column(args: argparse.Namespace) -> int:
     _compile_note(args, points=len(table))
     result = solve_column(table, mixture=mixture, species=_species_arg(args), state=args.state,
                           partial_pressures=args.partial_pressures, molecules=molecules_from_args(args),
-                          progress=False if args.quiet else None)
+                          progress=False if args.quiet else None, thermo=args.thermo)
     written = [write_column(result, out, overwrite=args.overwrite, command=_command_line()) for out in outputs]
     n = len(result.table)
     print(f"ionbal column: {args.model}: {n} depth points, state input {result.state_variable}, mixture "
@@ -376,6 +376,11 @@ def _add_grid_command(sub) -> None:
     out.add_argument("--no-validity", action="store_true",
                      help="do not store the per-point validity flags (ionbal.validity); they come from the same "
                           "core pass as the fractions, so this saves little time")
+    out.add_argument("--thermo", action="store_true",
+                     help="also store the thermodynamics per point (internal_energy, enthalpy, entropy, "
+                          "heat_capacity_p/_v, chi_temperature, chi_density, gamma1, gamma3, adiabatic_gradient, "
+                          "d ln n_e / d ln T and d ln P) and the per-element cubes electron_donor and dlnne_dA "
+                          "(atoms only)")
     out.add_argument("--overwrite", action="store_true",
                      help="replace an existing output file (it is kept until the new one is complete)")
     run = p.add_argument_group("running")
@@ -438,6 +443,11 @@ def _add_column_command(sub) -> None:
                    help="'default' (stages I-III of every element, and H-), 'all', or a list such as 'Fe I,Fe II'")
     p.add_argument("--partial-pressures", action="store_true",
                    help="also write the partial pressure n k T of every species (partial_pressure_Fe_II, ...)")
+    p.add_argument("--thermo", action="store_true",
+                   help="also write the thermodynamics (internal_energy, enthalpy, entropy, heat_capacity_p/_v, "
+                        "chi_temperature, chi_density, gamma1, gamma3, adiabatic_gradient, d ln n_e / d ln T and "
+                        "d ln P) and, per electron-donating element, electron_donor_Fe and dlnne_dA_Fe "
+                        "(atoms only)")
     add_mixture_options(p)
     add_molecule_options(p)
     p.add_argument("--overwrite", action="store_true", help="replace existing output files")

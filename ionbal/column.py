@@ -41,7 +41,7 @@ from .io.models import MODEL_UNITS, parse_column_map, read_model, resolve_column
 from .io.models import canonical_column_name as _canon
 from .io.provenance import assumptions, data_sources, molecules_record
 from .io.tablefile import write_table_file, write_text_table
-from .quantities import POINT_OUTPUTS, QUANTITIES, STATE_INPUTS, astropy_unit, species_column_name, unit_of_astropy
+from .quantities import POINT_OUTPUTS, QUANTITIES, THERMO_OUTPUTS, STATE_INPUTS, astropy_unit, species_column_name, unit_of_astropy
 from .selection import resolve_species
 from .validate import check_output_path, outside_temperature_range, table_temperature_range
 
@@ -193,9 +193,11 @@ def _where(table, i: int) -> str:
 
 #: depth points solved at once (bounded memory; the unit of progress of long models)
 CHUNK_POINTS = 20_000
+#: with ``thermo``, elements that supply at least this share of the free electrons somewhere get columns
+DONOR_MIN = 1e-4
 
 
-def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress, molecules=True) -> dict:
+def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress, molecules=True, thermo=False) -> dict:
     """Solve the depth points in chunks: the per-point outputs, status, iterations, validity bitmask,
     fractions and number densities of the species, as plain arrays over all points."""
     from .api import solve
@@ -225,8 +227,14 @@ def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress, molecules=Tru
                 raise ValueError(f"no converged solution at {where(a + i)} (T={T[a + i]:g} K, {sv}="
                                  f"{X[a + i]:g}): {r.message[i]}")
             for name in got:
-                if name != "molecules" and name in QUANTITIES and QUANTITIES[name].compute is not None:
+                if name != "molecules" and name in QUANTITIES and (QUANTITIES[name].compute is not None
+                                                                   or QUANTITIES[name].kind == "thermo"):
                     got[name][a:b] = r[name]
+            if thermo:
+                for key, values in (("donors", r.electron_donors()), ("sensitivity", r.abundance_sensitivity())):
+                    got.setdefault(key, {el: np.empty(n) for el in values})
+                    for el, v in values.items():
+                        got[key][el][a:b] = v
             got["status"][a:b] = status
             got["iterations"][a:b] = r.iterations
             got["validity"][a:b] = bitmask(r.validity)
@@ -241,7 +249,8 @@ def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress, molecules=Tru
 
 
 def solve_column(table, *, mixture=None, species="default", state: str | None = None, columns=None,
-                 partial_pressures: bool = False, molecules=False, progress: bool | None = False) -> ColumnResult:
+                 partial_pressures: bool = False, molecules=False, progress: bool | None = False,
+                 thermo: bool = False) -> ColumnResult:
     """Solve the ionization balance at every depth point of a model table.
 
     Parameters
@@ -268,6 +277,11 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     progress : bool or None
         Progress on stderr for models longer than :data:`CHUNK_POINTS` (solved chunk by
         chunk): ``None`` a bar on a terminal and periodic lines elsewhere, ``False`` (default) none.
+    thermo : bool
+        Also write the thermodynamic quantities (:data:`ionbal.quantities.THERMO_OUTPUTS`:
+        energies, heat capacities, Gamma_1, nabla_ad, d ln n_e / d ln T and d ln P, ...) and, for
+        every element that supplies at least :data:`DONOR_MIN` of the free electrons at some
+        depth, its donor share ``electron_donor_Fe`` and ``dlnne_dA_Fe`` (atoms-only solve).
 
     The columns used, those passed through and notes on the choice are in the
     result (:meth:`ColumnResult.input_lines`); nothing is chosen silently.
@@ -321,8 +335,12 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         raise ValueError(f"temperature {T[i]:g} K at {_where(table, i)} is outside the partition-function "
                          f"tables ({t_lo:.4g}-{t_hi:.4g} K)")
     sp_names = resolve_species(mix, species)
-    outputs = [name for name in POINT_OUTPUTS if name != sv]
-    got = _solve_rows(T, X, sv, mix, sp_names, outputs, lambda i: _where(table, i), progress, molecules)
+    outputs = [name for name in POINT_OUTPUTS if name != sv] + (list(THERMO_OUTPUTS) if thermo else [])
+    if thermo and molecules:
+        raise ValueError("thermo: the thermodynamic quantities are computed for the atoms-only solve so far; "
+                         "run without molecules for them")
+    got = _solve_rows(T, X, sv, mix, sp_names, outputs, lambda i: _where(table, i), progress, molecules,
+                      thermo=thermo)
     status = got["status"]
 
     res = Table(meta={k: v for k, v in table.meta.items() if k != "line_numbers"})
@@ -342,6 +360,15 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     res["iterations"] = got["iterations"]
     res["validity"] = got["validity"]
     res["validity"].description = "validity flags of ideal-gas LTE Saha (bitmask, see ionbal.validity)"
+    if thermo:
+        # the electron donors: every element that supplies at least 1e-4 of the free electrons somewhere
+        for el, share in got["donors"].items():
+            if np.nanmax(np.abs(share)) >= DONOR_MIN:
+                res[f"electron_donor_{el}"] = share
+                res[f"electron_donor_{el}"].description = f"share of the free electrons supplied by {el}"
+                res[f"dlnne_dA_{el}"] = got["sensitivity"][el]
+                res[f"dlnne_dA_{el}"].description = (f"d ln n_e / d A({el}) at constant T and gas pressure "
+                                                     "[per dex]")
 
     comparisons = []
     for q in _COMPARED:

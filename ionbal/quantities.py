@@ -7,6 +7,7 @@ Every quantity ionbal takes or gives is declared here once, as a :class:`Quantit
 * its cgs unit in one spelling (CF/FITS style, ``"dyn cm-2"``; converted by astropy where needed),
 * a short label (messages, CLI help) and a long name (the ``long_name`` of files),
 * its kind: ``"state"`` (temperature, which every state has), ``"point"`` (one value per point),
+  ``"thermo"`` (one value per point, computed on request by :mod:`ionbal.thermo`),
   ``"species"`` (one value per species and point), ``"axis"`` or ``"label"`` (file coordinates),
 * whether it can be the second state input (``state_input``: its rank of preference, with its CLI flag), and
 * for outputs, how it is computed from a solved state (``compute``, see :class:`SolvedState`) and
@@ -34,6 +35,7 @@ __all__ = [
     "QUANTITIES",
     "STATE_INPUTS",
     "POINT_OUTPUTS",
+    "THERMO_OUTPUTS",
     "SPECIES_OUTPUTS",
     "get",
     "unit",
@@ -44,7 +46,7 @@ __all__ = [
     "unit_of_astropy",
 ]
 
-KINDS = ("state", "point", "species", "axis", "label", "meta")
+KINDS = ("state", "point", "thermo", "species", "axis", "label", "meta")
 
 
 @dataclass(frozen=True)
@@ -137,6 +139,38 @@ QUANTITIES: dict[str, Quantity] = {q.name: q for q in (
     _q("mean_molecular_weight", "1", "mean molecular weight",
        "mean molecular weight per free particle, rho / ((n_atoms + n_molecules + n_e) m_u)",
        compute=lambda s: _mean_molecular_weight(s), symbol="mu"),
+    # --- thermodynamics (on request: result attributes, optional variables of grids and columns)
+    _q("internal_energy", "erg g-1", "internal energy per gram",
+       "internal energy per gram: translation, ionization and excitation (zero: neutral atoms in the "
+       "ground state)", kind="thermo", symbol="u"),
+    _q("enthalpy", "erg g-1", "enthalpy per gram", "enthalpy per gram, u + P / rho", kind="thermo",
+       symbol="h"),
+    _q("entropy", "erg g-1 K-1", "entropy per gram",
+       "entropy per gram of the ideal mixture (Sackur-Tetrode with partition functions)", kind="thermo",
+       symbol="s"),
+    _q("heat_capacity_v", "erg g-1 K-1", "specific heat at constant volume",
+       "specific heat at constant density, (du/dT)_rho", kind="thermo", symbol="c_v"),
+    _q("heat_capacity_p", "erg g-1 K-1", "specific heat at constant pressure",
+       "specific heat at constant pressure, (dh/dT)_P", kind="thermo", symbol="c_p"),
+    _q("chi_temperature", "1", "chi_T", "(d ln P / d ln T) at constant density", kind="thermo",
+       symbol="chi_T"),
+    _q("chi_density", "1", "chi_rho", "(d ln P / d ln rho) at constant temperature", kind="thermo",
+       symbol="chi_rho"),
+    _q("gamma1", "1", "Gamma_1", "first adiabatic exponent, (d ln P / d ln rho) at constant entropy",
+       kind="thermo", symbol="Gamma_1"),
+    _q("gamma3", "1", "Gamma_3", "third adiabatic exponent, 1 + (d ln T / d ln rho) at constant entropy",
+       kind="thermo", symbol="Gamma_3"),
+    _q("adiabatic_gradient", "1", "adiabatic gradient",
+       "adiabatic temperature gradient, (d ln T / d ln P) at constant entropy", kind="thermo",
+       symbol="nabla_ad"),
+    _q("dlnne_dlnT_p", "1", "d ln n_e / d ln T at constant P_gas",
+       "d ln n_e / d ln T at constant gas pressure", kind="thermo", symbol="dlnne/dlnT|P"),
+    _q("dlnne_dlnp_T", "1", "d ln n_e / d ln P_gas at constant T",
+       "d ln n_e / d ln P_gas at constant temperature", kind="thermo", symbol="dlnne/dlnP|T"),
+    _q("dlnne_dlnT_rho", "1", "d ln n_e / d ln T at constant density",
+       "d ln n_e / d ln T at constant mass density", kind="thermo", symbol="dlnne/dlnT|rho"),
+    _q("dlnne_dlnrho_T", "1", "d ln n_e / d ln rho at constant T",
+       "d ln n_e / d ln rho at constant temperature", kind="thermo", symbol="dlnne/dlnrho|T"),
     # --- per-species outputs (cubes)
     _q("ion_fraction", "1", "ion fraction", "fraction of the element's nuclei in this ionization stage",
        kind="species"),
@@ -164,6 +198,8 @@ STATE_INPUTS: tuple[str, ...] = tuple(sorted((n for n, q in QUANTITIES.items() i
                                              key=lambda n: QUANTITIES[n].state_input))
 #: per-point outputs of a solve (every quantity with a formula), in file order; the state inputs are outputs too
 POINT_OUTPUTS: tuple[str, ...] = tuple(n for n, q in QUANTITIES.items() if q.compute is not None)
+#: thermodynamic outputs (on request; :mod:`ionbal.thermo`), in file order
+THERMO_OUTPUTS: tuple[str, ...] = tuple(n for n, q in QUANTITIES.items() if q.kind == "thermo")
 #: per-species outputs (cubes of grid files)
 SPECIES_OUTPUTS: tuple[str, ...] = tuple(n for n, q in QUANTITIES.items() if q.kind == "species")
 

@@ -82,6 +82,7 @@ class IonizationResult:
         self._logfrac_cache: dict[int, np.ndarray] = {}
         self._validity = None
         self._moments = None
+        self._thermo = None
 
     # -- enumeration (registry quantities) --------------------------------------------------------
     def keys(self) -> tuple:
@@ -111,6 +112,9 @@ class IonizationResult:
         """A per-point quantity as a plain cgs array (what the other methods compute with)."""
         if name not in self._flat:
             q = QUANTITIES.get(name)
+            if q is not None and q.kind == "thermo":
+                self._thermo_block()
+                return self._flat[name].reshape(self.shape)
             if q is None or q.compute is None:
                 raise KeyError(f"{name!r} is not a per-point quantity of the result; it has "
                                f"{', '.join(self.keys())}")
@@ -123,7 +127,7 @@ class IonizationResult:
         if name.startswith("_"):
             raise AttributeError(name)
         q = QUANTITIES.get(name)
-        if q is not None and q.compute is not None:
+        if q is not None and (q.compute is not None or q.kind == "thermo"):
             return self[name]
         raise AttributeError(f"'IonizationResult' object has no attribute {name!r}")
 
@@ -286,6 +290,33 @@ class IonizationResult:
                     with np.errstate(invalid="ignore", divide="ignore"):
                         out[str(m)] = (count * self._molecule_column(m) / nuclei).reshape(self.shape)
         return out
+
+    # -- thermodynamics (ionbal.thermo) -------------------------------------------------------------
+    def _thermo_block(self):
+        if self._thermo is None:
+            from .thermo import thermodynamics
+
+            self._thermo = thermodynamics(self)
+            self._flat.update(self._thermo.fields)
+        return self._thermo
+
+    def electron_donors(self) -> dict:
+        """Share of the free electrons each element supplies: ``{element: array}``, summing to 1.
+
+        ``a_X <q>_X / (n_e / n_nuclei)`` with ``<q>`` the element's mean charge; hydrogen's share is
+        negative where H- holds more electrons than H II gives.  Atoms-only solve.
+        """
+        blk = self._thermo_block()
+        return {el: blk.share[:, e].reshape(self.shape) for e, el in enumerate(blk.elements)}
+
+    def abundance_sensitivity(self) -> dict:
+        """``{element: d ln n_e / d A(X)}`` at constant T and gas pressure (per dex of ``A(X)``).
+
+        Exact implicit derivative of the solve (see :mod:`ionbal.core.thermo`); the other
+        elements' abundances ``eps`` stay fixed.  Atoms-only solve.
+        """
+        blk = self._thermo_block()
+        return {el: blk.dlna[:, e].reshape(self.shape) for e, el in enumerate(blk.elements)}
 
     def _weight(self, sp) -> float:
         """Share of all nuclei held by the element (atoms) of a species."""

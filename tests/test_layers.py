@@ -50,7 +50,7 @@ LAYERS = {
     "core": 1,
     "data": 2,
     "api": 3, "validity": 3, "dense": 3, "chemistry": 3, "_problems": 3, "_version": 3, "__init__": 3,
-    "quantities": 3, "result": 3, "result_table": 3, "validate": 3, "selection": 3,
+    "quantities": 3, "thermo": 3, "result": 3, "result_table": 3, "validate": 3, "selection": 3,
     "io": 4,
     "grid": 4.5, "column": 4.5, "plot": 4.5,
     "cli": 5, "plot_cli": 5, "state_report": 5,

@@ -19,7 +19,8 @@ from ionbal.data.species import Species, parse_species
 
 
 def test_every_unit_is_read_by_astropy_and_is_cgs():
-    cgs = {u.K, u.dyn / u.cm**2, u.g / u.cm**3, u.cm**-3, u.dimensionless_unscaled, u.u}
+    cgs = {u.K, u.dyn / u.cm**2, u.g / u.cm**3, u.cm**-3, u.dimensionless_unscaled, u.u,
+           u.erg / u.g, u.erg / u.g / u.K}  # the thermodynamic quantities: per gram
     for name, q in Q.QUANTITIES.items():
         if not q.unit:
             continue  # labels (species, element)

@@ -7,7 +7,7 @@ from typing import Sequence
 
 import numpy as np
 
-from ..quantities import POINT_OUTPUTS
+from ..quantities import POINT_OUTPUTS, THERMO_OUTPUTS
 from .spec import TileTask
 
 __all__ = ["compute_tile", "species_fractions"]
@@ -19,7 +19,8 @@ def compute_tile(task: TileTask) -> dict[str, np.ndarray]:
     Keys: the :data:`ionbal.quantities.POINT_OUTPUTS` except the state variable, ``status``
     (int8), ``iterations`` (int32), ``validity`` (uint8 bitmask of
     :mod:`ionbal.validity`), ``ion_fraction`` (n_species, *shape) and, if
-    requested, ``number_density``.  Deterministic: the same task gives the
+    requested, ``number_density``; with ``thermo`` the :data:`~ionbal.quantities.THERMO_OUTPUTS` and the
+    element cubes ``electron_donor`` and ``dlnne_dA`` (n_elements, *shape).  Deterministic: the same task gives the
     same bits on any worker of the same installation.
     """
     from ..api import solve
@@ -50,6 +51,11 @@ def compute_tile(task: TileTask) -> dict[str, np.ndarray]:
     if task.molecules:
         dens = r.molecule_densities(task.molecules).reshape((len(task.molecules),) + shape)
         out["molecule_number_density"] = dens.astype(dtype, copy=False) if dens.dtype != dtype else dens
+    if task.thermo:
+        for name in THERMO_OUTPUTS:
+            out[name] = np.ascontiguousarray(np.broadcast_to(r[name], shape), dtype=np.float64)
+        for key, values in (("electron_donor", r.electron_donors()), ("dlnne_dA", r.abundance_sensitivity())):
+            out[key] = np.stack([np.broadcast_to(v, shape) for v in values.values()])
     if task.validity:
         from ..validity import bitmask
 

@@ -85,6 +85,7 @@ class TileTask:
     validity: bool = True
     numba_threads: int | None = None
     molecules: tuple | bool = False
+    thermo: bool = False
 
 
 @dataclass(frozen=True)
@@ -127,6 +128,10 @@ class GridSpec:
         tabulated molecule the mixture can form).  Stored resolved (the tuple of labels, or False), so
         that resuming with another choice is refused; with molecules the file has a
         ``molecule`` coordinate and a ``molecule_number_density`` cube.
+    thermo : bool
+        Also store the thermodynamic quantities of :data:`ionbal.quantities.THERMO_OUTPUTS`
+        (per point) and the cubes ``electron_donor`` and ``dlnne_dA`` (per element and point:
+        the share of the free electrons each element supplies, d ln n_e / d A(X)); atoms only.
     """
 
     temperature: Axis
@@ -143,6 +148,7 @@ class GridSpec:
     max_iterations: int = 200
     validity: bool = True
     molecules: tuple | bool = False
+    thermo: bool = False
 
     def __post_init__(self) -> None:
         from ..api import default_mixture
@@ -180,7 +186,10 @@ class GridSpec:
                 self.mixture_at((im, ia) if m is not None else ())
         object.__setattr__(self, "species", resolve_species(mix, self.species))
         object.__setattr__(self, "molecules", _resolve_molecules(mix, self.molecules))
-        for name in ("number_densities", "float32", "validity"):
+        if self.thermo and self.molecules:
+            raise ValueError("thermo: the thermodynamic quantities are computed for the atoms-only solve so far; "
+                             "store them without molecules")
+        for name in ("number_densities", "float32", "validity", "thermo"):
             object.__setattr__(self, name, bool(getattr(self, name)))
         ts = self.tile_size
         if isinstance(ts, bool) or not isinstance(ts, (int, np.integer)) or ts < 1:
@@ -281,6 +290,7 @@ class GridSpec:
             validity=self.validity,
             numba_threads=numba_threads,
             molecules=self.molecules,
+            thermo=self.thermo,
         )
 
     # -- serialisation ------------------------------------------------------------------------------
@@ -304,6 +314,7 @@ class GridSpec:
             "validity": self.validity,
             # atoms-only specs keep their former layout (no key): files without it are atoms-only
             **({"molecules": list(self.molecules)} if self.molecules else {}),
+            **({"thermo": True} if self.thermo else {}),
         }
 
     @classmethod
@@ -324,6 +335,7 @@ class GridSpec:
             max_iterations=d.get("max_iterations", 200),
             validity=d.get("validity", True),
             molecules=tuple(d["molecules"]) if d.get("molecules") else False,
+            thermo=bool(d.get("thermo", False)),
         )
 
     def fingerprint(self) -> dict:

@@ -10,7 +10,7 @@ import numpy as np
 
 from .._version import __version__
 from ..core import status as st
-from ..quantities import POINT_OUTPUTS, QUANTITIES
+from ..quantities import POINT_OUTPUTS, QUANTITIES, THERMO_OUTPUTS
 from .netcdf import (
     FILE_TYPE_GRID,
     FORMAT_VERSION,
@@ -83,6 +83,9 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
         for name in POINT_OUTPUTS:
             if name != sv:
                 point_vars[name] = _variable(f, name, pdims, pshape, np.float64, chunks=pchunks)
+        if spec.thermo:
+            for name in THERMO_OUTPUTS:
+                point_vars[name] = _variable(f, name, pdims, pshape, np.float64, chunks=pchunks)
         point_vars["status"] = _variable(f, "status", pdims, pshape, np.int8, chunks=pchunks)
         _status_attrs(point_vars["status"])
         point_vars["iterations"] = _variable(f, "iterations", pdims, pshape, np.int32, chunks=pchunks)
@@ -109,7 +112,19 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
                 chunks=cchunks, units=QUANTITIES["number_density"].unit, compress=deflate,
                 long_name="number density of the molecule (one particle each; its nuclei are in the "
                           "elements' budgets)")
+        if spec.thermo:
+            edims = comp_dims + ("element", "temperature", sv)
+            eshape = comp_shape + (len(elements), nt, ns)
+            for key, text in (("electron_donor", "share of the free electrons supplied by the element "
+                                                 "(sums to 1 over the elements)"),
+                              ("dlnne_dA", "d ln n_e / d A(X) at constant temperature and gas pressure "
+                                           "[per dex of the element's abundance]")):
+                ds = _variable(f, key, edims, eshape, np.float64, chunks=cchunks, units="1", long_name=text)
+                ds.attrs["comment"] = "elements are labelled by the 'element' coordinate; atoms-only solve"
+                cubes[key] = ds
         for key, ds in cubes.items():
+            if key in ("electron_donor", "dlnne_dA"):
+                continue
             ds.attrs["comment"] = (("molecules are labelled by the 'molecule' coordinate; "
                                     if key == "molecule_number_density"
                                     else "species are labelled by the 'species' coordinate; ")

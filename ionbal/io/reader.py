@@ -11,7 +11,7 @@ from typing import Sequence
 import numpy as np
 
 from ..core import status as st
-from ..quantities import POINT_OUTPUTS, STATE_INPUTS, astropy_unit
+from ..quantities import POINT_OUTPUTS, STATE_INPUTS, THERMO_OUTPUTS, astropy_unit
 from . import interpolate as _interp
 from .netcdf import FILE_TYPE_GRID, QUANTITY_UNITS, GridFileError, _attr_str, _h5py, _short
 
@@ -353,7 +353,7 @@ class GridFile:
             For points outside the grid (naming the offending value and the
             grid range), or next to grid points that did not converge.
         """
-        allowed = [v for v in POINT_OUTPUTS if v in self.variables or v == self.state_variable]
+        allowed = [v for v in POINT_OUTPUTS + THERMO_OUTPUTS if v in self.variables or v == self.state_variable]
         if name not in allowed:
             raise ValueError(f"cannot interpolate {name!r}: choose one of {', '.join(allowed)}, or use "
                              "interpolate_fraction / interpolate_number_density for species")
@@ -417,6 +417,9 @@ class GridFile:
                                        else ""))
         lines.append(f"  molecules         {len(self.molecules)} ({_abbrev(self.molecules, 8)}); number densities "
                      "stored" if self.molecules else "  molecules         none (atoms and atomic ions only)")
+        if "gamma1" in self.variables:
+            lines.append("  thermodynamics    " + ", ".join(v for v in THERMO_OUTPUTS if v in self.variables)
+                         + "; electron_donor and dlnne_dA per element")
         counts = self.status_counts()
         lines.append("  status            " + ", ".join(f"{k} {v:,}" for k, v in counts.items()))
         vc = self.validity_counts()

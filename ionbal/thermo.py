@@ -1,0 +1,68 @@
+"""Thermodynamics of a solved state: energies, heat capacities, adiabatic exponents, n_e sensitivities.
+
+Computed from the converged solution by exact implicit differentiation of the charge and
+particle conservation equations (:mod:`ionbal.core.thermo` has the formulas), not by finite
+differences.  Scope: the atoms-only solve (``molecules=False``), ideal gas in LTE, the partition
+functions of the solve (piecewise-linear ln U in log T between table nodes, so the excitation
+energy ``kT dlnU/dlnT`` is constant inside a table interval and steps at the nodes; the nodes
+lie 0.01 dex apart, and the step is small against the ionization terms).
+
+The per-point quantities are entries of the quantity registry (kind ``"thermo"``,
+:data:`ionbal.quantities.THERMO_OUTPUTS`): ``result.gamma1``, ``result["adiabatic_gradient"]``, the
+optional variables of grid files and columns of ``ionbal column --thermo``.  The per-element
+ones are :meth:`ionbal.result.IonizationResult.electron_donors` and
+:meth:`~ionbal.result.IonizationResult.abundance_sensitivity`.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .core.constants import AMU, M_E
+from .core.thermo import N_THERMO, THERMO_FIELDS, thermo_many
+from .data.elements import atomic_mass, symbol
+from .quantities import THERMO_OUTPUTS
+
+assert THERMO_OUTPUTS == THERMO_FIELDS, "the registry's thermo quantities are the kernel's columns"
+
+__all__ = ["ThermoBlock", "thermodynamics", "THERMO_FIELDS"]
+
+
+@dataclass(frozen=True)
+class ThermoBlock:
+    """Flat arrays of one thermodynamics evaluation: ``fields[name]`` (n,), ``share``/``dlna`` (n, n_elem)."""
+
+    fields: dict
+    share: np.ndarray
+    dlna: np.ndarray
+    elements: tuple
+
+
+def _check_scope(result) -> None:
+    if result.molecules:
+        raise ValueError("thermodynamic quantities are computed for the atoms-only solve so far "
+                         "(molecules=False); this result was solved with molecules")
+
+
+def thermodynamics(result) -> ThermoBlock:
+    """Evaluate every thermodynamic quantity of a result (one kernel pass over its points)."""
+    _check_scope(result)
+    s = result._state
+    p = s.packed
+    T = np.array(s.temperature, dtype=np.float64)  # writeable copies (results may hold broadcast views)
+    x = np.array(s.x, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lnN = np.log(s.nn)
+    lnN = np.where(np.isfinite(s.ne), lnN, np.nan)
+    with np.errstate(divide="ignore"):
+        elem_lnm = (1.5 * np.log(np.array([atomic_mass(int(z)) for z in p.atomic_numbers]) * AMU / M_E)
+                    - np.log(np.asarray(p.elem_w, dtype=np.float64)))
+    n = T.size
+    out = np.empty((n, N_THERMO))
+    share = np.empty((n, p.elem_w.size))
+    dlna = np.empty((n, p.elem_w.size))
+    thermo_many(T, x, np.ascontiguousarray(lnN), p.arrays, elem_lnm, float(p.mean_mass), out, share, dlna)
+    return ThermoBlock({name: np.ascontiguousarray(out[:, j]) for j, name in enumerate(THERMO_FIELDS)},
+                       share, dlna, tuple(symbol(int(z)) for z in p.atomic_numbers))
