@@ -7,7 +7,9 @@ Its SIGINT handler is installed first and knows three phases:
 * starting - the command line and its libraries (numpy, astropy, ...) are still being imported: no
   file has been touched, so the process ends at once with the one-line message and 130;
 * running  - the first Ctrl-C is raised as ``KeyboardInterrupt`` for the command line's own handling
-  (which cleans up and prints the same line); a further one during that clean-up is ignored;
+  (which cleans up and prints the same line); a further one during that clean-up is ignored.  One
+  that arrives inside a finalizer (a weakref callback or ``__del__``, where Python would print and
+  drop the exception) is raised again 5 ms later, outside it;
 * done     - the command has finished and its result is complete: a late Ctrl-C is ignored, so the
   exit status stays the one the command returned.
 
@@ -27,9 +29,32 @@ STARTING, RUNNING, STOPPING, DONE = range(4)
 _phase = [STARTING]
 
 
+#: seconds after which a Ctrl-C that came inside a finalizer is raised again (SIGALRM)
+RETRY_AFTER = 0.005
+
+
+def _in_finalizer(frame) -> bool:
+    """Is the interrupted code (or a caller of it) a weakref callback or a ``__del__``?
+
+    Python runs those from C while it frees objects, and prints ("Exception ignored in ...") and
+    drops whatever they raise: a ``KeyboardInterrupt`` raised there would be lost and show a
+    traceback (issue 16: Ctrl-C during the final assembly of a grid).
+    """
+    while frame is not None:
+        code = frame.f_code
+        if code.co_name == "__del__" or code.co_filename.endswith(("weakref.py", "_weakrefset.py")):
+            return True
+        frame = frame.f_back
+    return False
+
+
 def _on_sigint(signum, frame):
     phase = _phase[0]
     if phase == RUNNING:
+        if _in_finalizer(frame):
+            # not here: raise it a moment later, on the next bytecode outside the finalizer
+            signal.setitimer(signal.ITIMER_REAL, RETRY_AFTER)
+            return
         _phase[0] = STOPPING
         raise KeyboardInterrupt
     if phase == STARTING:  # pragma: no cover - exercised by the process tests
@@ -45,6 +70,7 @@ def _on_sigint(signum, frame):
 def main() -> int:
     """Run ``ionbal`` with the arguments of the process; returns the exit status."""
     signal.signal(signal.SIGINT, _on_sigint)
+    signal.signal(signal.SIGALRM, _on_sigint)  # the retry of a Ctrl-C that came inside a finalizer
     from .cli import main as run
 
     try:

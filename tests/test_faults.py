@@ -428,3 +428,37 @@ def test_a_real_full_disk_grid_and_column(small_disk, capsys):
     print(f"\nreal 2 MB file system: grid (~8 MB) and column (1,000 points) refused with one line each; previous "
           f"files untouched; {free_after_grid} bytes free after the failed grid (its partial file removed); "
           "bytes lost 0")
+
+
+def test_ctrl_c_inside_a_finalizer_is_raised_again_after_it():
+    """Issue 16, item 3: a Ctrl-C that lands in a weakref callback or ``__del__`` (where Python prints and
+    drops any exception) is not raised there but re-armed by a short timer; elsewhere it is raised."""
+    import signal
+    import sys
+
+    from ionbal import _launch
+
+    seen = {}
+
+    class Finalized:
+        def __del__(self):
+            seen["inside"] = _launch._in_finalizer(sys._getframe())
+            old = _launch._phase[0]
+            _launch._phase[0] = _launch.RUNNING
+            try:
+                seen["returned"] = _launch._on_sigint(signal.SIGINT, sys._getframe()) is None
+                seen["timer"] = signal.getitimer(signal.ITIMER_REAL)[0]
+            finally:
+                signal.setitimer(signal.ITIMER_REAL, 0.0)
+                _launch._phase[0] = old
+
+    Finalized()  # freed at once: its __del__ runs here
+    assert seen == {"inside": True, "returned": True, "timer": pytest.approx(_launch.RETRY_AFTER, abs=0.005)}
+    assert not _launch._in_finalizer(sys._getframe())
+    old = _launch._phase[0]
+    _launch._phase[0] = _launch.RUNNING
+    try:
+        with pytest.raises(KeyboardInterrupt):
+            _launch._on_sigint(signal.SIGINT, sys._getframe())
+    finally:
+        _launch._phase[0] = old

@@ -42,7 +42,9 @@ def test_million_state_round_trips_for_every_state_input():
     Bound: 1e-6 relative.  With electron pressure as input, the nuclei follow from
     n_e = n_nuc (Q+ - Q-), and in cool dense gas where H- outnumbers the free electrons the difference
     Q+ - Q- loses digits: the round trip is then limited by round-off times C = 1 + n(H-)/n_e (up to
-    ~1e8 near 1,000 K and 1e12 dyn cm^-2); there the bound is 1e-13 * C and the states are counted."""
+    ~1e8 near 1,000 K and 1e12 dyn cm^-2).  Each solve meets charge conservation to tol = 1e-13 of the
+    positive charge, which bounds its n_e to 1e-13 * C relative; the round trip has two solves, so there
+    the bound is 2e-13 * C and the states are counted (measured: up to 1.13e-13 * C)."""
     import ionbal
     from ionbal import _problems
 
@@ -62,7 +64,7 @@ def test_million_state_round_trips_for_every_state_input():
         worst = np.maximum(e_p, e_n)
         if var == "electron_pressure":
             over = worst > 1e-6
-            assert np.all(worst[over] <= 1e-13 * cond[over]), (worst / cond).max()
+            assert np.all(worst[over] <= 2e-13 * cond[over]), (worst / cond).max()
             extra = (f"; {int(over.sum())} states above 1e-6, all with 1 + n(H-)/n_e >= "
                      f"{cond[over].min():.1e} (max error / C {np.max(worst / cond):.1e})" if over.any() else "")
         else:
