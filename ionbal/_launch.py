@@ -9,7 +9,9 @@ Its SIGINT handler is installed first and knows three phases:
 * running  - the first Ctrl-C is raised as ``KeyboardInterrupt`` for the command line's own handling
   (which cleans up and prints the same line); a further one during that clean-up is ignored.  One
   that arrives inside a finalizer (a weakref callback or ``__del__``, where Python would print and
-  drop the exception) is raised again 5 ms later, outside it;
+  drop the exception) is raised again 5 ms later, outside it, and one that Python dropped all the
+  same (code called back from C, such as the compiler's ctypes callbacks) is caught by
+  ``sys.unraisablehook``, not printed, and raised again the same way;
 * done     - the command has finished and its result is complete: a late Ctrl-C is ignored, so the
   exit status stays the one the command returned.
 
@@ -48,6 +50,16 @@ def _in_finalizer(frame) -> bool:
     return False
 
 
+def _unraisable(hook_args) -> None:
+    """``sys.unraisablehook``: a Ctrl-C that Python dropped (it came inside code called back from C,
+    e.g. a ctypes callback of the compiler, a finalizer) is not printed but raised again shortly."""
+    if issubclass(hook_args.exc_type, KeyboardInterrupt) and _phase[0] == STOPPING:
+        _phase[0] = RUNNING
+        signal.setitimer(signal.ITIMER_REAL, RETRY_AFTER)
+        return
+    sys.__unraisablehook__(hook_args)
+
+
 def _on_sigint(signum, frame):
     phase = _phase[0]
     if phase == RUNNING:
@@ -71,6 +83,7 @@ def main() -> int:
     """Run ``ionbal`` with the arguments of the process; returns the exit status."""
     signal.signal(signal.SIGINT, _on_sigint)
     signal.signal(signal.SIGALRM, _on_sigint)  # the retry of a Ctrl-C that came inside a finalizer
+    sys.unraisablehook = _unraisable
     from .cli import main as run
 
     try:

@@ -453,6 +453,16 @@ def test_ctrl_c_inside_a_finalizer_is_raised_again_after_it():
                 _launch._phase[0] = old
 
     Finalized()  # freed at once: its __del__ runs here
+    # one that Python dropped all the same reaches sys.unraisablehook: not printed, re-armed
+    old = _launch._phase[0]
+    _launch._phase[0] = _launch.STOPPING
+    try:
+        hook_args = type("Args", (), {"exc_type": KeyboardInterrupt})()
+        assert _launch._unraisable(hook_args) is None
+        assert _launch._phase[0] == _launch.RUNNING and signal.getitimer(signal.ITIMER_REAL)[0] > 0
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0.0)
+        _launch._phase[0] = old
     assert seen == {"inside": True, "returned": True, "timer": pytest.approx(_launch.RETRY_AFTER, abs=0.005)}
     assert not _launch._in_finalizer(sys._getframe())
     old = _launch._phase[0]
