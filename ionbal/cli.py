@@ -140,9 +140,9 @@ def _cmd_state(args: argparse.Namespace) -> int:
     if args.json:
         import json
 
-        print(json.dumps(state_record(result, elements=elements), indent=2))
+        print(json.dumps(state_record(result, elements=elements, thermo=args.thermo), indent=2))
     else:
-        print(format_state(result, min_fraction=args.min_fraction, elements=elements))
+        print(format_state(result, min_fraction=args.min_fraction, elements=elements, thermo=args.thermo))
     if args.output:
         from .io.tablefile import write_text_table
         from .validity import bitmask
@@ -491,6 +491,8 @@ def build_parser() -> argparse.ArgumentParser:
     out.add_argument("--json", action="store_true",
                      help="print everything as JSON (cgs values, units, validity flags, every stage fraction) "
                           "for scripts")
+    out.add_argument("--thermo", action="store_true", help="also show the thermodynamics (gamma1, nabla_ad, c_p, "
+                     "...) and the largest electron donors with d ln n_e / d A(X) (atoms only)")
     out.add_argument("-o", "--output", default=None, metavar="FILE",
                      help="also write the state as a one-row table: .ecsv (with units), .csv or .txt; columns "
                           "named as in ionbal column files (fraction_Fe_II, number_density_Fe_II, ...)")

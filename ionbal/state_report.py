@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from .core.constants import K_B
-from .quantities import POINT_OUTPUTS, QUANTITIES, unit_text
+from .quantities import POINT_OUTPUTS, QUANTITIES, THERMO_OUTPUTS, unit_text
 
 __all__ = ["format_state", "state_record"]
 
@@ -14,10 +14,14 @@ def _fmt_fraction(f: float) -> str:
     return f"{f:.5f}" if f >= 1e-3 else f"{f:.2e}"
 
 
-def _quantity_lines(value) -> list[str]:
+#: how many electron donors ``ionbal state --thermo`` lists (the largest share first)
+TOP_DONORS = 5
+
+
+def _quantity_lines(value, names=POINT_OUTPUTS) -> list[str]:
     """One line per per-point output of the registry: symbol, value, unit."""
     lines = []
-    for name in POINT_OUTPUTS:
+    for name in names:
         q = QUANTITIES[name]
         if q.unit in ("", "1"):
             lines.append(f"  {q.symbol or name:<16} {value(name):.6f}")
@@ -93,7 +97,23 @@ def _budget_text(result, el, min_fraction: float) -> str:
     return f"  | in molecules {_fmt_fraction(total)}" + (f" ({inner})" if inner else "")
 
 
-def state_record(result, *, elements=None) -> dict:
+def _donors(result) -> list[tuple[str, float, float]]:
+    """(element, share of the free electrons, d ln n_e / d A(X)) of the largest donors of a 0-D result."""
+    shares = {el: float(np.asarray(v)) for el, v in result.electron_donors().items()}
+    sens = result.abundance_sensitivity()
+    top = sorted(shares, key=lambda el: -abs(shares[el]))[:TOP_DONORS]
+    return [(el, shares[el], float(np.asarray(sens[el]))) for el in top]
+
+
+def _thermo_lines(result, value) -> list[str]:
+    lines = ["  thermodynamics   (exact derivatives of the converged solve; atoms only)",
+             *("  " + ln for ln in _quantity_lines(value, THERMO_OUTPUTS))]
+    lines.append("  electron donors  (share of n_e, d ln n_e / d A(X) per dex): "
+                 + ", ".join(f"{el} {s:.4f} ({d:+.3f})" for el, s, d in _donors(result)))
+    return lines
+
+
+def state_record(result, *, elements=None, thermo: bool = False) -> dict:
     """Everything ``ionbal state`` shows, as a JSON-ready dict (values in cgs, units named)."""
     import ionbal
     from .validity import FLAG_NAMES, PHYSICS_FLAGS, VALIDITY_FLAGS
@@ -124,6 +144,12 @@ def state_record(result, *, elements=None) -> dict:
         "molecule_partial_pressures": {},
         "in_molecules": {},
     }
+    if thermo:
+        rec.update({name: val(name) for name in THERMO_OUTPUTS})
+        rec["units"].update({name: QUANTITIES[name].unit for name in THERMO_OUTPUTS})
+        rec["electron_donors"] = {el: s for el, s in
+                                  ((el, float(np.asarray(v))) for el, v in result.electron_donors().items()) if s}
+        rec["dlnne_dA"] = {el: float(np.asarray(v)) for el, v in result.abundance_sensitivity().items()}
     kT = K_B * rec["temperature"]
     rec["molecule_partial_pressures"] = {label: n * kT for label, n in rec["molecules"].items()}
     rec["units"].update({"molecules": QUANTITIES["number_density"].unit,
@@ -139,7 +165,7 @@ def state_record(result, *, elements=None) -> dict:
     return rec
 
 
-def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
+def format_state(result, *, min_fraction: float = 1e-4, elements=None, thermo: bool = False) -> str:
     """A readable summary of a 0-D :class:`~ionbal.IonizationResult`."""
     import ionbal
 
@@ -155,6 +181,7 @@ def format_state(result, *, min_fraction: float = 1e-4, elements=None) -> str:
         *_quantity_lines(f),
         f"  status           {str(np.asarray(r.message))} ({int(np.asarray(r.iterations))} iterations)",
         *_validity_lines(r),
+        *(_thermo_lines(r, f) if thermo else ()),
         *_molecule_lines(r),
         "",
         f"  {'element':<8} {'dominant':<10} stage fractions (stages above {min_fraction:g}; of the element's "

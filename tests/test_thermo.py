@@ -329,3 +329,20 @@ def test_peak_bisection_equals_the_full_scan():
     # equal up to round-off where two stages tie for the peak (the moments are then shifted differently)
     np.testing.assert_allclose(outs[0][0], outs[1][0], rtol=1e-13, atol=0)
     np.testing.assert_allclose(outs[0][1], outs[1][1], rtol=1e-13, atol=1e-300)
+
+
+def test_state_command_shows_thermo(capsys):
+    import json
+
+    from ionbal.cli import main
+
+    assert main(["state", "-T", "5800", "-P", "1e5", "--thermo", "--elements", "Fe"]) == 0
+    out = capsys.readouterr().out
+    assert "Gamma_1" in out and "nabla_ad" in out and "electron donors" in out
+    assert main(["state", "-T", "5800", "-P", "1e5", "--thermo", "--json"]) == 0
+    rec = json.loads(capsys.readouterr().out)
+    r = ionbal.solve(5800.0, gas_pressure=1e5)
+    assert rec["gamma1"] == float(r.gamma1) and rec["units"]["heat_capacity_p"] == "erg g-1 K-1"
+    assert abs(sum(rec["electron_donors"].values()) - 1) < 1e-12
+    assert main(["state", "-T", "3000", "-P", "1e4", "--thermo", "--molecules", "CO"]) != 0
+    assert "atoms-only" in capsys.readouterr().err
