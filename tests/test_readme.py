@@ -52,6 +52,7 @@ COMMANDS = [
     "ionbal state -T 5800 -P 1e5",
     "ionbal state -T 20000 -P 1e12",
     "ionbal state -T 5800 -P 1e5 --json",
+    "ionbal state -T 5800 -P 1e5 --thermo",
     "ionbal state -T 5800 -P 1e5 -o state.ecsv",
     "ionbal column examples/vessa7-model.txt --metallicity -1.5 --alpha 0.4 -o vessa7.ecsv",
     "ionbal column examples/vessa7-model.txt -o out.ecsv -o out.csv",
