@@ -55,7 +55,7 @@ import numpy as np
 
 from .config import jit, pjit, prange
 from .constants import EV, K_B, K_B_EV, LN_SAHA_CONST
-from .saha import LN2, closed_log_weights, populated_window
+from .saha import LN2, closed_log_weights, populated_window, table_position
 from .solver import N_CHUNKS, chunk_bounds
 
 #: per-point outputs of :func:`thermo_many`, in this column order
@@ -98,18 +98,9 @@ def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=
     """
     lnU = mix.lnU
     n_t = lnU.shape[1]
+    i, w = table_position(T, mix.lt0, mix.dlt, n_t)
     u = (math.log10(T) - mix.lt0) / mix.dlt
-    i = int(math.floor(u))
-    if i < 0:
-        i = 0
-    elif i > n_t - 2:
-        i = n_t - 2
-    w = u - i
-    inside = 0.0 <= w <= 1.0
-    if w < 0.0:
-        w = 0.0
-    elif w > 1.0:
-        w = 1.0
+    inside = 0.0 <= u <= n_t - 1.0  # outside the table ln U is held constant: no slope
     slope_scale = 1.0 / (mix.dlt * LN10) if inside else 0.0
     lnT = math.log(T)
     base = LN2 + LN_SAHA_CONST + 1.5 * lnT
