@@ -292,11 +292,11 @@ class IonizationResult:
         return out
 
     # -- thermodynamics (ionbal.thermo) -------------------------------------------------------------
-    def _thermo_block(self):
-        if self._thermo is None:
+    def _thermo_block(self, per_element: bool = False):
+        if self._thermo is None or (per_element and self._thermo.share is None):
             from .thermo import thermodynamics
 
-            self._thermo = thermodynamics(self)
+            self._thermo = thermodynamics(self, per_element)
             self._flat.update(self._thermo.fields)
         return self._thermo
 
@@ -306,7 +306,7 @@ class IonizationResult:
         ``a_X <q>_X / (n_e / n_nuclei)`` with ``<q>`` the element's mean charge; hydrogen's share is
         negative where H- holds more electrons than H II gives.  Atoms-only solve.
         """
-        blk = self._thermo_block()
+        blk = self._thermo_block(per_element=True)
         return {el: blk.share[:, e].reshape(self.shape) for e, el in enumerate(blk.elements)}
 
     def abundance_sensitivity(self) -> dict:
@@ -315,7 +315,7 @@ class IonizationResult:
         Exact implicit derivative of the solve (see :mod:`ionbal.core.thermo`); the other
         elements' abundances ``eps`` stay fixed.  Atoms-only solve.
         """
-        blk = self._thermo_block()
+        blk = self._thermo_block(per_element=True)
         return {el: blk.dlna[:, e].reshape(self.shape) for e, el in enumerate(blk.elements)}
 
     def _weight(self, sp) -> float:

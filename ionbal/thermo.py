@@ -32,7 +32,10 @@ __all__ = ["ThermoBlock", "thermodynamics", "THERMO_FIELDS"]
 
 @dataclass(frozen=True)
 class ThermoBlock:
-    """Flat arrays of one thermodynamics evaluation: ``fields[name]`` (n,), ``share``/``dlna`` (n, n_elem)."""
+    """Flat arrays of one thermodynamics evaluation: ``fields[name]`` (n,), ``share``/``dlna`` (n, n_elem).
+
+    ``share`` and ``dlna`` are None when the evaluation was asked for the per-point quantities only.
+    """
 
     fields: dict
     share: np.ndarray
@@ -46,8 +49,12 @@ def _check_scope(result) -> None:
                          "(molecules=False); this result was solved with molecules")
 
 
-def thermodynamics(result) -> ThermoBlock:
-    """Evaluate every thermodynamic quantity of a result (one kernel pass over its points)."""
+def thermodynamics(result, per_element: bool = True) -> ThermoBlock:
+    """Evaluate every thermodynamic quantity of a result (one kernel pass over its points).
+
+    ``per_element=False`` leaves out the donor shares and d ln n_e/dA(X) (two (n, n_elem) arrays:
+    with 83 elements they would outweigh the 14 per-point quantities twelve times).
+    """
     _check_scope(result)
     s = result._state
     p = s.packed
@@ -61,8 +68,9 @@ def thermodynamics(result) -> ThermoBlock:
                     - np.log(np.asarray(p.elem_w, dtype=np.float64)))
     n = T.size
     out = np.empty((n, N_THERMO))
-    share = np.empty((n, p.elem_w.size))
-    dlna = np.empty((n, p.elem_w.size))
+    rows = n if per_element else 0
+    share = np.empty((rows, p.elem_w.size))
+    dlna = np.empty((rows, p.elem_w.size))
     thermo_many(T, x, np.ascontiguousarray(lnN), p.arrays, elem_lnm, float(p.mean_mass), out, share, dlna)
     return ThermoBlock({name: np.ascontiguousarray(out[:, j]) for j, name in enumerate(THERMO_FIELDS)},
-                       share, dlna, tuple(symbol(int(z)) for z in p.atomic_numbers))
+                       share if per_element else None, dlna if per_element else None, tuple(symbol(int(z)) for z in p.atomic_numbers))

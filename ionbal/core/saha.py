@@ -172,22 +172,26 @@ def find_peak(C, f, n, x, kp0):
 
 
 @jit
-def populated_window(C, f, n, q0, x, kp0):
+def populated_window(C, f, n, q0, x, kp0, gas_cut=math.inf):
     """The stages of one element that matter at ``x = ln n_e``: ``(kp, m, lo, hi)``.
 
     ``kp`` is the most populated stage position and ``m`` its log weight
     ``C_kp - kp x``; stages ``lo..hi`` lie within ``CUT`` (in ln) of the peak,
     walking outwards from it -- except that a neutral element keeps its ions
     down to ``CUT`` below the first ion, since they carry its charge however
-    rare they are, and hydrogen keeps all three stages.
+    rare they are, and hydrogen keeps all three stages.  A caller that knows that a stage
+    more than ``gas_cut`` below the peak is negligible against the whole gas (an
+    abundance-aware cut, see :func:`.thermo.thermo_point`; default: no such cut) drops it, the
+    ions of a neutral element included; the peak is always kept.
     """
     kp, m = find_peak(C, f, n, x, kp0)
     # the populated window: walk outwards from the peak until CUT below it
+    cut = min(CUT, gas_cut)
     lo = kp
-    while lo > 0 and C[f + lo - 1] - (lo - 1) * x - m >= -CUT:
+    while lo > 0 and C[f + lo - 1] - (lo - 1) * x - m >= -cut:
         lo -= 1
     hi = kp
-    while hi + 1 < n and C[f + hi + 1] - (hi + 1) * x - m >= -CUT:
+    while hi + 1 < n and C[f + hi + 1] - (hi + 1) * x - m >= -cut:
         hi += 1
     if q0 < 0:
         # hydrogen (H-, H I, H II): in cool gas both charged stages may lie far below the
@@ -198,8 +202,9 @@ def populated_window(C, f, n, q0, x, kp0):
         # neutral peak: the element's charge is carried by the ions, however far below the
         # peak they lie; keep them down to CUT below the first ion (k = 1)
         t1 = C[f + 1] - x - m
-        hi = 1
-        while hi + 1 < n and C[f + hi + 1] - (hi + 1) * x - m >= t1 - CUT:
+        floor = max(t1 - CUT, -gas_cut)
+        hi = 1 if t1 >= -gas_cut else 0
+        while hi + 1 < n and C[f + hi + 1] - (hi + 1) * x - m >= floor:
             hi += 1
     return kp, m, lo, hi
 

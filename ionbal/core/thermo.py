@@ -66,6 +66,8 @@ THERMO_FIELDS = (
 )
 N_THERMO = len(THERMO_FIELDS)
 LN10 = math.log(10.0)
+#: ln of the share of the gas below which a stage is left out of the sums (exp(-46) ~ 1e-20)
+GAS_CUT = 46.0
 
 
 @jit
@@ -83,18 +85,22 @@ def peak_guess(C, f, n, x):
 
 
 @jit
-def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=False):
+def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=False, per_element=True):
     """All :data:`THERMO_FIELDS` of one solved state into ``out``; donor shares and d ln n_e/dA(X).
 
     ``x = ln n_e``, ``lnN = ln`` (nuclei per cm^3), ``elem_lnm = 1.5 ln(m_atom / m_e) - ln a_e`` per
     element (the constant part of its translational entropy),
     ``mean_mass`` [g] per nucleus, ``C`` a work array of one value per stage.  ``share`` and
-    ``dlna`` get one value per element.  Each element is summed over the stages of
-    :func:`.saha.populated_window`, the window the solve itself sums, so the moments here are
-    those of the converged equations.  The peak of each element is found by bisection on the
+    ``dlna`` get one value per element (with ``per_element=False`` ``share`` is scratch and
+    ``dlna`` is left alone).  Each element is summed over the stages of
+    :func:`.saha.populated_window`, the window the solve itself sums, less the stages whose share
+    of all nuclei is below ``exp(-GAS_CUT)`` of ``min(Zbar, 1)`` (an abundance-aware cut: trace
+    elements keep one to three stages), so the moments here are those of the converged
+    equations to ~1e-20 relative.  The peak of each element is found by bisection on the
     log-population steps ``C_{k+1} - C_k - x`` (decreasing in k: ionization energies grow with
     charge) and a climb from there (:func:`.saha.find_peak`); ``scan`` scans every stage instead
-    (the tests compare the two).
+    and sums the solve's whole window, without the abundance-aware cut (the reference the tests
+    compare with).
     """
     lnU = mix.lnU
     n_t = lnU.shape[1]
@@ -108,6 +114,11 @@ def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=
     beta = 1.0 / kT_ev
     closed_log_weights(T, mix, C)  # C_s = k base - X_s / kT + ln U_s
     n_elem = mix.elem_first.size
+    # abundance-aware cut: a stage of element e whose share of all nuclei, a_e f_s, lies below
+    # exp(-GAS_CUT) of min(Zbar, 1) (Zbar = n_e / N is known at the converged point) adds less
+    # than that to every sum below; its log weight then lies more than
+    # GAS_CUT + ln a_e - ln min(Zbar, 1) below the element's peak
+    lzb = min(x - lnN, 0.0)
     zbar = 0.0
     var = 0.0
     ckh = 0.0
@@ -123,7 +134,9 @@ def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=
         f = mix.elem_first[e]
         n = mix.elem_n[e]
         q0 = mix.elem_q0[e]
-        kb, best, lo, hi = populated_window(C, f, n, q0, x, -1 if scan else peak_guess(C, f, n, x))
+        gas_cut = math.inf if scan else GAS_CUT + math.log(a) - lzb
+        kb, best, lo, hi = populated_window(C, f, n, q0, x, -1 if scan else peak_guess(C, f, n, x),
+                                            gas_cut)
         xb = mix.stage_xcum[f + kb]
         # moments shifted to the most populated stage (no cancellation)
         # h_s = dC_s/dlnT = beta eps_s + 1.5 k (since beta kT = 1), so the moments of h follow from
@@ -145,7 +158,7 @@ def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=
                 lu = (1.0 - w) * lnU[r, i] + w * lnU[r, i + 1]
                 du = (lnU[r, i + 1] - lnU[r, i]) * slope_scale
             lw = C[s] - k * x - best
-            wt = math.exp(lw)
+            wt = 1.0 if k == kb else math.exp(lw)  # the peak's lw is 0 (best is its C - k x)
             kk = float(k - kb)
             eps = (mix.stage_xcum[s] - xb) + kT_ev * du
             we = wt * eps
@@ -157,28 +170,31 @@ def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=
             sek += we * kk
             su += wt * du
             sent += wt * (lu + du - lw)
-        mk = sk / s0
-        me = se / s0
+        inv = 1.0 / s0
+        mk = sk * inv
+        me = se * inv
         q = q0 + kb + mk
-        v = skk / s0 - mk * mk
-        c_ek = sek / s0 - me * mk
-        v_e = see / s0 - me * me
+        v = skk * inv - mk * mk
+        c_ek = sek * inv - me * mk
+        v_e = see * inv - me * me
         zbar += a * q
         share[e] = a * q
         var += a * v
         ckh += a * (beta * c_ek + 1.5 * v)
         # <eps> measured from the neutral ground state: shift back by X_best - X_neutral
         e_ion += a * (me + xb - mix.stage_xcum[f - q0])
-        de_sum += a * (kT_ev * su / s0 + beta * v_e + 1.5 * c_ek)
+        de_sum += a * (kT_ev * su * inv + beta * v_e + 1.5 * c_ek)
         cek += a * c_ek
         # s_e / k = 5/2 + <ln U + u - ln f> - ln(N a) + 3/2 ln(2 pi m kT / h^2)
-        ent += a * (2.5 + sent / s0 + math.log(s0) - lnN + LN_SAHA_CONST + 1.5 * lnT + elem_lnm[e])
+        ent += a * (2.5 + sent * inv + (math.log(s0) if hi > lo else 0.0) - lnN + LN_SAHA_CONST + 1.5 * lnT
+                    + elem_lnm[e])
     if not (zbar > 0.0):
         for j in range(out.size):
             out[j] = math.nan
-        for e in range(n_elem):
-            share[e] = math.nan
-            dlna[e] = math.nan
+        if per_element:
+            for e in range(n_elem):
+                share[e] = math.nan
+                dlna[e] = math.nan
         return
     kT = K_B * T
     dxt = ckh / (zbar + var)
@@ -209,6 +225,8 @@ def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=
     out[11] = dxr / chi_r
     out[12] = dxt
     out[13] = dxr
+    if not per_element:
+        return
     den = 1.0 + zbar + var / zbar
     for e in range(n_elem):
         share[e] = share[e] / zbar
@@ -219,18 +237,25 @@ def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=
 def thermo_many(T, x, lnN, mix, elem_lnm, mean_mass, out, share, dlna, scan=False):
     """:func:`thermo_point` at every point (``out``: (n, N_THERMO); ``share``, ``dlna``: (n, n_elem)).
 
-    Points whose ``x`` or ``lnN`` is not finite (unsolved) get NaN everywhere.
+    ``share`` and ``dlna`` of zero rows: the per-point quantities only (no (n, n_elem) arrays to
+    fill).  Points whose ``x`` or ``lnN`` is not finite (unsolved) get NaN everywhere.
     """
     n = T.size
+    n_elem = mix.elem_first.size
+    per_element = share.shape[0] > 0
     n_chunks = min(N_CHUNKS, n)
     for c in prange(n_chunks):
         a, b = chunk_bounds(c, n, n_chunks)
         C = np.empty(mix.stage_chi.size)
+        scratch = np.empty(n_elem)
         for p in range(a, b):
+            sh = share[p] if per_element else scratch
+            dl = dlna[p] if per_element else scratch
             if math.isfinite(x[p]) and math.isfinite(lnN[p]):
-                thermo_point(T[p], x[p], lnN[p], mix, elem_lnm, mean_mass, C, out[p], share[p], dlna[p], scan)
+                thermo_point(T[p], x[p], lnN[p], mix, elem_lnm, mean_mass, C, out[p], sh, dl, scan,
+                             per_element)
             else:
                 out[p, :] = math.nan
-                share[p, :] = math.nan
-                dlna[p, :] = math.nan
-
+                if per_element:
+                    share[p, :] = math.nan
+                    dlna[p, :] = math.nan
