@@ -230,7 +230,7 @@ def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress, molecules=Tru
                 if name != "molecules" and name in QUANTITIES and (QUANTITIES[name].compute is not None
                                                                    or QUANTITIES[name].kind == "thermo"):
                     got[name][a:b] = r[name]
-            if thermo:
+            if thermo and not r.molecules:  # per-element quantities: atoms-only solve so far
                 for key, values in (("donors", r.electron_donors()), ("sensitivity", r.abundance_sensitivity())):
                     got.setdefault(key, {el: np.empty(n) for el in values})
                     for el, v in values.items():
@@ -336,9 +336,6 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
                          f"tables ({t_lo:.4g}-{t_hi:.4g} K)")
     sp_names = resolve_species(mix, species)
     outputs = [name for name in POINT_OUTPUTS if name != sv] + (list(THERMO_OUTPUTS) if thermo else [])
-    if thermo and molecules:
-        raise ValueError("thermo: the thermodynamic quantities are computed for the atoms-only solve so far; "
-                         "run without molecules for them")
     got = _solve_rows(T, X, sv, mix, sp_names, outputs, lambda i: _where(table, i), progress, molecules,
                       thermo=thermo)
     status = got["status"]
@@ -360,7 +357,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     res["iterations"] = got["iterations"]
     res["validity"] = got["validity"]
     res["validity"].description = "validity flags of ideal-gas LTE Saha (bitmask, see ionbal.validity)"
-    if thermo:
+    if thermo and "donors" in got:
         # the electron donors: every element that supplies at least 1e-4 of the free electrons somewhere
         for el, share in got["donors"].items():
             if np.nanmax(np.abs(share)) >= DONOR_MIN:

@@ -232,13 +232,14 @@ def test_abundance_sensitivity_matches_finite_differences(T, P):
         assert abs(float(sens[el]) - fd) <= 1e-6 * abs(fd) + 1e-9, (el, float(sens[el]), fd)
 
 
-def test_unsolved_points_are_nan_and_molecule_results_are_refused():
+def test_unsolved_points_are_nan_and_molecular_donors_are_refused():
     r = ionbal.solve([5000.0, -1.0], gas_pressure=1e4, errors="mask")
     assert np.isfinite(r.gamma1[0]) and np.isnan(r.gamma1[1])
     assert np.isnan(r.electron_donors()["Fe"][1])
     rm = ionbal.solve(3000.0, gas_pressure=1e4, molecules=["H2", "CO"])
+    assert np.isfinite(rm.gamma1)  # per point: molecules included (tests/test_thermo_molecules.py)
     with pytest.raises(ValueError, match="atoms-only"):
-        rm.gamma1
+        rm.electron_donors()
 
 
 # -- grid files, model columns and the CLI -------------------------------------------------------------
@@ -272,8 +273,7 @@ def test_grid_stores_thermo_variables_equal_to_the_api(tmp_path):
     plain = GridSpec(T, P, species=("Fe I", "Fe II"), tile_size=7)
     assert spec.to_dict()["thermo"] is True and "thermo" not in plain.to_dict()
     assert GridSpec.from_dict(spec.to_dict()) == spec
-    with pytest.raises(ValueError, match="atoms-only"):
-        GridSpec(T, P, thermo=True, molecules=["CO"])
+    assert GridSpec(T, P, thermo=True, molecules=["CO"]).thermo  # per-point quantities with molecules
 
 
 def test_column_and_cli_write_thermo_columns(tmp_path, capsys):
@@ -349,8 +349,9 @@ def test_state_command_shows_thermo(capsys):
     r = ionbal.solve(5800.0, gas_pressure=1e5)
     assert rec["gamma1"] == float(r.gamma1) and rec["units"]["heat_capacity_p"] == "erg g-1 K-1"
     assert abs(sum(rec["electron_donors"].values()) - 1) < 1e-12
-    assert main(["state", "-T", "3000", "-P", "1e4", "--thermo", "--molecules", "CO"]) != 0
-    assert "atoms-only" in capsys.readouterr().err
+    assert main(["state", "-T", "3000", "-P", "1e4", "--thermo", "--molecules", "CO"]) == 0
+    out = capsys.readouterr().out
+    assert "molecules included" in out and "Gamma_1" in out and "atoms-only solve so far" in out
 
 
 def test_per_point_quantities_without_the_element_arrays():

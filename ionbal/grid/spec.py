@@ -130,7 +130,7 @@ class GridSpec:
         ``molecule`` coordinate and a ``molecule_number_density`` cube.
     thermo : bool
         Also store the thermodynamic quantities of :data:`ionbal.quantities.THERMO_OUTPUTS`
-        (per point) and the cubes ``electron_donor`` and ``dlnne_dA`` (per element and point:
+        (per point) and, for the atoms-only solve, the cubes ``electron_donor`` and ``dlnne_dA`` (per element and point:
         the share of the free electrons each element supplies, d ln n_e / d A(X)); atoms only.
     """
 
@@ -186,9 +186,6 @@ class GridSpec:
                 self.mixture_at((im, ia) if m is not None else ())
         object.__setattr__(self, "species", resolve_species(mix, self.species))
         object.__setattr__(self, "molecules", _resolve_molecules(mix, self.molecules))
-        if self.thermo and self.molecules:
-            raise ValueError("thermo: the thermodynamic quantities are computed for the atoms-only solve so far; "
-                             "store them without molecules")
         for name in ("number_densities", "float32", "validity", "thermo"):
             object.__setattr__(self, name, bool(getattr(self, name)))
         ts = self.tile_size

@@ -112,7 +112,7 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
                 chunks=cchunks, units=QUANTITIES["number_density"].unit, compress=deflate,
                 long_name="number density of the molecule (one particle each; its nuclei are in the "
                           "elements' budgets)")
-        if spec.thermo:
+        if spec.thermo and not molecules:  # per-element quantities: atoms-only solve so far
             edims = comp_dims + ("element", "temperature", sv)
             eshape = comp_shape + (len(elements), nt, ns)
             for key, text in (("electron_donor", "share of the free electrons supplied by the element "
