@@ -380,7 +380,7 @@ def _add_grid_command(sub) -> None:
                      help="also store the thermodynamics per point (internal_energy, enthalpy, entropy, "
                           "heat_capacity_p/_v, chi_temperature, chi_density, gamma1, gamma3, adiabatic_gradient, "
                           "d ln n_e / d ln T and d ln P) and the per-element cubes electron_donor and dlnne_dA "
-                          "(the cubes: atoms-only solve)")
+                          "(with molecules too)")
     out.add_argument("--overwrite", action="store_true",
                      help="replace an existing output file (it is kept until the new one is complete)")
     run = p.add_argument_group("running")
@@ -447,7 +447,7 @@ def _add_column_command(sub) -> None:
                    help="also write the thermodynamics (internal_energy, enthalpy, entropy, heat_capacity_p/_v, "
                         "chi_temperature, chi_density, gamma1, gamma3, adiabatic_gradient, d ln n_e / d ln T and "
                         "d ln P) and, per electron-donating element, electron_donor_Fe and dlnne_dA_Fe "
-                        "(those: atoms-only solve)")
+                        "(with molecules too)")
     add_mixture_options(p)
     add_molecule_options(p)
     p.add_argument("--overwrite", action="store_true", help="replace existing output files")
@@ -492,7 +492,7 @@ def build_parser() -> argparse.ArgumentParser:
                      help="print everything as JSON (cgs values, units, validity flags, every stage fraction) "
                           "for scripts")
     out.add_argument("--thermo", action="store_true", help="also show the thermodynamics (gamma1, nabla_ad, c_p, "
-                     "...) and the largest electron donors with d ln n_e / d A(X) (donors: atoms only)")
+                     "...) and the largest electron donors with d ln n_e / d A(X)")
     out.add_argument("-o", "--output", default=None, metavar="FILE",
                      help="also write the state as a one-row table: .ecsv (with units), .csv or .txt; columns "
                           "named as in ionbal column files (fraction_Fe_II, number_density_Fe_II, ...)")

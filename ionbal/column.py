@@ -230,7 +230,7 @@ def _solve_rows(T, X, sv, mix, sp_names, outputs, where, progress, molecules=Tru
                 if name != "molecules" and name in QUANTITIES and (QUANTITIES[name].compute is not None
                                                                    or QUANTITIES[name].kind == "thermo"):
                     got[name][a:b] = r[name]
-            if thermo and not r.molecules:  # per-element quantities: atoms-only solve so far
+            if thermo:
                 for key, values in (("donors", r.electron_donors()), ("sensitivity", r.abundance_sensitivity())):
                     got.setdefault(key, {el: np.empty(n) for el in values})
                     for el, v in values.items():
@@ -281,7 +281,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
         Also write the thermodynamic quantities (:data:`ionbal.quantities.THERMO_OUTPUTS`:
         energies, heat capacities, Gamma_1, nabla_ad, d ln n_e / d ln T and d ln P, ...) and, for
         every element that supplies at least :data:`DONOR_MIN` of the free electrons at some
-        depth, its donor share ``electron_donor_Fe`` and ``dlnne_dA_Fe`` (atoms-only solve).
+        depth, its donor share ``electron_donor_Fe`` and ``dlnne_dA_Fe``.
 
     The columns used, those passed through and notes on the choice are in the
     result (:meth:`ColumnResult.input_lines`); nothing is chosen silently.
@@ -357,7 +357,7 @@ def solve_column(table, *, mixture=None, species="default", state: str | None = 
     res["iterations"] = got["iterations"]
     res["validity"] = got["validity"]
     res["validity"].description = "validity flags of ideal-gas LTE Saha (bitmask, see ionbal.validity)"
-    if thermo and "donors" in got:
+    if thermo:
         # the electron donors: every element that supplies at least 1e-4 of the free electrons somewhere
         for el, share in got["donors"].items():
             if np.nanmax(np.abs(share)) >= DONOR_MIN:

@@ -304,7 +304,8 @@ class IonizationResult:
         """Share of the free electrons each element supplies: ``{element: array}``, summing to 1.
 
         ``a_X <q>_X / (n_e / n_nuclei)`` with ``<q>`` the element's mean charge; hydrogen's share is
-        negative where H- holds more electrons than H II gives.  Atoms-only solve.
+        negative where H- holds more electrons than H II gives.  With molecules a molecular ion
+        counts for the element of its charged product (H2+ for H, ...).
         """
         blk = self._thermo_block(per_element=True)
         return {el: blk.share[:, e].reshape(self.shape) for e, el in enumerate(blk.elements)}
@@ -312,8 +313,8 @@ class IonizationResult:
     def abundance_sensitivity(self) -> dict:
         """``{element: d ln n_e / d A(X)}`` at constant T and gas pressure (per dex of ``A(X)``).
 
-        Exact implicit derivative of the solve (see :mod:`ionbal.core.thermo`); the other
-        elements' abundances ``eps`` stay fixed.  Atoms-only solve.
+        Exact implicit derivative of the solve (see :mod:`ionbal.core.thermo` and
+        :mod:`ionbal.core.thermo_mol`); the other elements' abundances ``eps`` stay fixed.
         """
         blk = self._thermo_block(per_element=True)
         return {el: blk.dlna[:, e].reshape(self.shape) for e, el in enumerate(blk.elements)}

@@ -109,11 +109,8 @@ def _thermo_lines(result, value) -> list[str]:
     what = "molecules included" if result.molecules else "atoms only"
     lines = [f"  thermodynamics   (exact derivatives of the converged solve; {what})",
              *("  " + ln for ln in _quantity_lines(value, THERMO_OUTPUTS))]
-    if result.molecules:
-        lines.append("  electron donors  (computed for the atoms-only solve so far; run without molecules)")
-    else:
-        lines.append("  electron donors  (share of n_e, d ln n_e / d A(X) per dex): "
-                     + ", ".join(f"{el} {s:.4f} ({d:+.3f})" for el, s, d in _donors(result)))
+    lines.append("  electron donors  (share of n_e, d ln n_e / d A(X) per dex): "
+                 + ", ".join(f"{el} {s:.4f} ({d:+.3f})" for el, s, d in _donors(result)))
     return lines
 
 
@@ -151,10 +148,9 @@ def state_record(result, *, elements=None, thermo: bool = False) -> dict:
     if thermo:
         rec.update({name: val(name) for name in THERMO_OUTPUTS})
         rec["units"].update({name: QUANTITIES[name].unit for name in THERMO_OUTPUTS})
-        if not result.molecules:  # the per-element quantities are atoms-only so far
-            rec["electron_donors"] = {el: s for el, s in ((el, float(np.asarray(v)))
-                                                          for el, v in result.electron_donors().items()) if s}
-            rec["dlnne_dA"] = {el: float(np.asarray(v)) for el, v in result.abundance_sensitivity().items()}
+        rec["electron_donors"] = {el: s for el, s in ((el, float(np.asarray(v)))
+                                                      for el, v in result.electron_donors().items()) if s}
+        rec["dlnne_dA"] = {el: float(np.asarray(v)) for el, v in result.abundance_sensitivity().items()}
     kT = K_B * rec["temperature"]
     rec["molecule_partial_pressures"] = {label: n * kT for label, n in rec["molecules"].items()}
     rec["units"].update({"molecules": QUANTITIES["number_density"].unit,

@@ -2,9 +2,8 @@
 
 Computed from the converged solution by exact implicit differentiation of the charge and
 particle conservation equations (:mod:`ionbal.core.thermo` has the formulas), not by finite
-differences.  Scope: ideal gas in LTE; the per-point quantities for the atoms-only solve and,
-through :mod:`ionbal.core.thermo_mol`, for the joint molecular solve; the per-element ones
-(donors, d ln n_e/dA(X)) for the atoms-only solve.  The partition
+differences.  Scope: ideal gas in LTE, the atoms-only solve and (through
+:mod:`ionbal.core.thermo_mol`) the joint molecular solve.  The partition
 functions of the solve (piecewise-linear ln U in log T between table nodes, so the excitation
 energy ``kT dlnU/dlnT`` is constant inside a table interval and steps at the nodes; the nodes
 lie 0.01 dex apart, and the step is small against the ionization terms).
@@ -45,15 +44,8 @@ class ThermoBlock:
     elements: tuple
 
 
-def _check_scope(result, per_element: bool) -> None:
-    if result.molecules and per_element:
-        raise ValueError("the electron-donor budget and d ln n_e/dA(X) are computed for the atoms-only "
-                         "solve so far (molecules=False); this result was solved with molecules (its "
-                         "per-point thermodynamic quantities are available)")
-
-
-def _molecular(result) -> ThermoBlock:
-    """The per-point quantities of a molecular result (:mod:`ionbal.core.thermo_mol`)."""
+def _molecular(result, per_element: bool) -> ThermoBlock:
+    """The quantities of a molecular result (:mod:`ionbal.core.thermo_mol`)."""
     from .core.thermo_mol import thermo_mol_many
 
     s = result._state
@@ -67,10 +59,15 @@ def _molecular(result) -> ThermoBlock:
     lny = np.ascontiguousarray(chem.ln_free_neutral_atoms, dtype=np.float64)
     elem_lnm = 1.5 * np.log(np.array([atomic_mass(int(z)) for z in p.atomic_numbers]) * AMU / M_E)
     out = np.empty((T.size, N_THERMO))
+    rows = T.size if per_element else 0
+    share = np.empty((rows, p.elem_w.size))
+    dlna = np.empty((rows, p.elem_w.size))
     pm = chem.molecules
-    thermo_mol_many(T, x, L, lny, p.arrays, pm.arrays, pm.elem_former, elem_lnm, float(p.mean_mass), out)
+    thermo_mol_many(T, x, L, lny, p.arrays, pm.arrays, pm.elem_former, elem_lnm, float(p.mean_mass), out, share,
+                    dlna)
     return ThermoBlock({name: np.ascontiguousarray(out[:, j]) for j, name in enumerate(THERMO_FIELDS)},
-                       None, None, tuple(symbol(int(z)) for z in p.atomic_numbers))
+                       share if per_element else None, dlna if per_element else None,
+                       tuple(symbol(int(z)) for z in p.atomic_numbers))
 
 
 def thermodynamics(result, per_element: bool = True) -> ThermoBlock:
@@ -79,9 +76,8 @@ def thermodynamics(result, per_element: bool = True) -> ThermoBlock:
     ``per_element=False`` leaves out the donor shares and d ln n_e/dA(X) (two (n, n_elem) arrays:
     with 83 elements they would outweigh the 14 per-point quantities twelve times).
     """
-    _check_scope(result, per_element)
     if result.molecules:
-        return _molecular(result)
+        return _molecular(result, per_element)
     s = result._state
     p = s.packed
     T = np.array(s.temperature, dtype=np.float64)  # writeable copies (results may hold broadcast views)

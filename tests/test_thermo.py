@@ -232,14 +232,13 @@ def test_abundance_sensitivity_matches_finite_differences(T, P):
         assert abs(float(sens[el]) - fd) <= 1e-6 * abs(fd) + 1e-9, (el, float(sens[el]), fd)
 
 
-def test_unsolved_points_are_nan_and_molecular_donors_are_refused():
+def test_unsolved_points_are_nan():
     r = ionbal.solve([5000.0, -1.0], gas_pressure=1e4, errors="mask")
     assert np.isfinite(r.gamma1[0]) and np.isnan(r.gamma1[1])
     assert np.isnan(r.electron_donors()["Fe"][1])
-    rm = ionbal.solve(3000.0, gas_pressure=1e4, molecules=["H2", "CO"])
-    assert np.isfinite(rm.gamma1)  # per point: molecules included (tests/test_thermo_molecules.py)
-    with pytest.raises(ValueError, match="atoms-only"):
-        rm.electron_donors()
+    rm = ionbal.solve([3000.0, -1.0], gas_pressure=1e4, molecules=["H2", "CO"], errors="mask")
+    assert np.isfinite(rm.gamma1[0]) and np.isnan(rm.gamma1[1])  # molecules: tests/test_thermo_molecules.py
+    assert np.isnan(rm.electron_donors()["Fe"][1])
 
 
 # -- grid files, model columns and the CLI -------------------------------------------------------------
@@ -351,7 +350,7 @@ def test_state_command_shows_thermo(capsys):
     assert abs(sum(rec["electron_donors"].values()) - 1) < 1e-12
     assert main(["state", "-T", "3000", "-P", "1e4", "--thermo", "--molecules", "CO"]) == 0
     out = capsys.readouterr().out
-    assert "molecules included" in out and "Gamma_1" in out and "atoms-only solve so far" in out
+    assert "molecules included" in out and "Gamma_1" in out and "electron donors" in out
 
 
 def test_per_point_quantities_without_the_element_arrays():

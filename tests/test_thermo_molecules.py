@@ -101,6 +101,24 @@ def test_equal_to_the_atoms_only_kernel_where_molecules_are_negligible():
         np.testing.assert_allclose(_g(rm, name), _g(ra, name), rtol=1e-9, atol=1e-10, err_msg=name)
 
 
+@pytest.mark.parametrize("T, P", [(3000.0, 1e5), (4000.0, 1e3), (2000.0, 1e7)])
+def test_donors_and_abundance_sensitivity_with_molecules(T, P):
+    """Donor shares sum to 1 (charge conservation); d ln n_e / d A(X) against central finite
+    differences of the molecular solve in A(X) (step 1e-4 dex), for H, C, O (CO-locked below
+    ~3,000 K) and the main donors."""
+    r = ionbal.solve(T, gas_pressure=P, molecules=True)
+    shares = r.electron_donors()
+    assert abs(sum(float(v) for v in shares.values()) - 1) < 1e-12
+    sens = r.abundance_sensitivity()
+    base = r.mixture
+    d = 1e-4
+    for el in ("H", "C", "O", "Na", "K", "Mg", "Fe", "Si"):
+        up = ionbal.solve(T, gas_pressure=P, molecules=True, mixture=base.with_abundances({el: base[el] + d}))
+        dn = ionbal.solve(T, gas_pressure=P, molecules=True, mixture=base.with_abundances({el: base[el] - d}))
+        fd = (np.log(float(up.electron_density)) - np.log(float(dn.electron_density))) / (2 * d)
+        assert abs(float(sens[el]) - fd) <= 1e-5 * abs(fd) + 1e-9, (el, float(sens[el]), fd)
+
+
 def test_molecules_lower_gamma1_in_the_h2_dissociation_zone():
     """Textbook behaviour (common practice): dissociation of H2 absorbs heat, which lowers Gamma_1 and
     nabla_ad below their ideal values and raises c_p, where H2 <-> 2H turns over."""
@@ -126,9 +144,11 @@ def test_molecular_grid_and_column_store_the_per_point_quantities(tmp_path, caps
     r = ionbal.solve(T.array[:, None], gas_pressure=P.array[None, :], molecules=["H2", "CO"])
     with h5py.File(path, "r") as f:
         np.testing.assert_allclose(f["gamma1"][...], r.gamma1, rtol=1e-12)
-        assert "electron_donor" not in f and "dlnne_dA" not in f
+        k = list(f["element"][...].astype(str)).index("C")
+        np.testing.assert_allclose(f["dlnne_dA"][k], r.abundance_sensitivity()["C"], rtol=1e-12)
+        np.testing.assert_allclose(f["electron_donor"][...].sum(axis=0), 1.0, rtol=1e-12)
     g = ionbal.open_grid(path)
-    assert "thermodynamics" in g.summary() and "electron_donor" not in g.summary()
+    assert "thermodynamics" in g.summary()
     g.close()
     model = tmp_path / "invented-cool-star.txt"  # an invented depth structure, not a published model
     Tm, Pm = np.linspace(2800.0, 6000.0, 8), np.geomspace(1e3, 1e5, 8)
@@ -138,5 +158,5 @@ def test_molecular_grid_and_column_store_the_per_point_quantities(tmp_path, caps
     t = Table.read(out)
     rm = ionbal.solve(Tm, gas_pressure=Pm, molecules=["H2", "CO"])
     np.testing.assert_allclose(np.asarray(t["gamma1"]), rm.gamma1, rtol=1e-12)
-    assert not any(c.startswith("electron_donor") for c in t.colnames)
+    assert "electron_donor_Na" in t.colnames and "dlnne_dA_Na" in t.colnames
     capsys.readouterr()

@@ -23,6 +23,11 @@ system of the molecule formers' ``y_j`` and ``x`` for a change of ln T and one f
 ln N.  Elements that form no molecule are eliminated: their stage fractions move as in
 :mod:`.thermo` (``d ln n_k = (h_k - <h>) dlnT - (q_k - <q>) dx + dlnN``).
 
+The per-element quantities: each element's share of the free electrons (its atomic ions and the
+molecular ions whose charged product is one of its ions; they sum to 1 by charge conservation) and
+``d ln n_e / d A(X)`` at fixed T and P_gas, from the same equations with ``ln N`` as an unknown and
+the ideal-gas law as its equation, driven by ``d ln w_e / d A(X) = ln 10 (delta_eX - w_X)``.
+
 The entropy follows from Euler's relation with every chemical potential expressed through the
 neutral atoms (charge neutrality removes the electrons'):
 ``T S = E + P - sum_e N_e mu_e``, ``mu_e = kT ln(n_e,0 lambda_e^3 / U_e,0)`` for the neutral atom of
@@ -93,13 +98,66 @@ def _add(G, row, n, g, dvec, ncol):
 
 
 @jit
-def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, wk, out):
+def _all_nan(out, share, dlna, per_element):
+    for c in range(out.size):
+        out[c] = math.nan
+    if per_element:
+        for e in range(share.size):
+            share[e] = math.nan
+            dlna[e] = math.nan
+
+
+@jit
+def _solve_multi(A, B, n, m):
+    """Solve ``A[:n, :n] X = B[:n, :m]`` in place (Gaussian elimination, partial pivoting); ``B`` becomes ``X``."""
+    for c in range(n):
+        p = c
+        big = abs(A[c, c])
+        for i in range(c + 1, n):
+            if abs(A[i, c]) > big:
+                big = abs(A[i, c])
+                p = i
+        if not (big > 0.0):
+            return False
+        if p != c:
+            for k in range(n):
+                t = A[c, k]
+                A[c, k] = A[p, k]
+                A[p, k] = t
+            for k in range(m):
+                t = B[c, k]
+                B[c, k] = B[p, k]
+                B[p, k] = t
+        inv = 1.0 / A[c, c]
+        for i in range(c + 1, n):
+            fct = A[i, c] * inv
+            if fct != 0.0:
+                for k in range(c + 1, n):
+                    A[i, k] -= fct * A[c, k]
+                for k in range(m):
+                    B[i, k] -= fct * B[c, k]
+    for c in range(n - 1, -1, -1):
+        inv = 1.0 / A[c, c]
+        for k in range(m):
+            t = B[c, k]
+            for i in range(c + 1, n):
+                t -= A[c, i] * B[i, k]
+            B[c, k] = t * inv
+    return True
+
+
+@jit
+def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, wk, out, share, dlna, per_element):
     """All :data:`.thermo.THERMO_FIELDS` of one solved molecular state into ``out``.
 
     ``lny`` (n_elements,): ln density of every element's neutral atom; ``elem_lnm`` = 1.5 ln(m_atom /
-    m_e) per element; ``wk`` a tuple of work arrays from :func:`work_arrays`.
+    m_e) per element; ``wk`` a tuple of work arrays from :func:`work_arrays`.  With
+    ``per_element`` also ``share`` (the share of the free electrons each element supplies: its
+    atomic ions and the molecular ions whose charged product is one of its ions) and ``dlna``
+    (d ln n_e / d A(X) at fixed T and P_gas, from the system with ln N as a third kind of unknown
+    and the ideal-gas law as its equation).
     """
-    C, du, lnu, lnkp, gslope, dvec, G, A, b1, b2 = wk
+    C, du, lnu, lnkp, gslope, dvec, G, A, b1, b2, chg, gpos, gneg, gpart, A3, B3 = wk
     J = mol.former_elem.size
     nE = mix.elem_w.size
     M = mol.mol_d0.size
@@ -150,6 +208,10 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
         sn = f + kn
         y = lny[e]
         j = elem_former[e]
+        chg[e] = 0.0
+        gpos[e] = 0.0
+        gneg[e] = 0.0
+        gpart[e] = 0.0
         eps0 = kT_ev * (1.5 + du[sn])  # the neutral atom's mean energy [eV]
         mu_sum += a_e * N * (y - lnu[sn] - LN_SAHA_CONST - 1.5 * lnT - elem_lnm[e])
         # window: within CUT of the peak, and of the ions next to the neutral atom
@@ -202,12 +264,16 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
                 dvec[J] = -(q - mq)
                 dvec[iT] = h - mh
                 dvec[iL] = 1.0
+            chg[e] += q * dens
             if q > 0:
                 tot[r_pos] += q * dens
                 _add(G, r_pos, dens, q, dvec, ncol)
+                gpos[e] += q * dens * dvec[iL]
             elif q < 0:
                 tot[r_neg] -= q * dens
                 _add(G, r_neg, dens, -q, dvec, ncol)
+                gneg[e] -= q * dens * dvec[iL]
+            gpart[e] += dens * dvec[iL]
             tot[r_part] += dens
             _add(G, r_part, dens, 1.0, dvec, ncol)
             tot[r_en] += eps * dens
@@ -245,6 +311,8 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
         dvec[J] = -qm
         dvec[iT] = dphi
         dens = math.exp(t)
+        if ie >= 0:
+            chg[ie] += qm * dens
         for c in range(3):
             jj = mol.mol_comp[mm, c]
             if jj >= 0:
@@ -263,8 +331,7 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
         _add(G, r_en, dens, eps, dvec, ncol)
         edot += dens * (eps + kT_ev * d2)
     if not (tot[r_pos] > 0.0):
-        for c in range(out.size):
-            out[c] = math.nan
+        _all_nan(out, share, dlna, per_element)
         return
     # implicit derivatives at fixed N (dv_T) and at fixed T per unit ln N (dv_L)
     for a in range(nv):
@@ -283,8 +350,7 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
             b2[a] = -(G[r_neg, iL] * ineg - G[r_pos, iL] * ip)
     A2 = A[:nv, :nv].copy()
     if not (_solve_linear(A, b1, nv) and _solve_linear(A2, b2, nv)):
-        for c in range(out.size):
-            out[c] = math.nan
+        _all_nan(out, share, dlna, per_element)
         return
     part = tot[r_part]
     dpart_t = G[r_part, iT]
@@ -320,6 +386,44 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
     out[11] = dxr / chi_r
     out[12] = dxt
     out[13] = dxr
+    if not per_element:
+        return
+    ne = math.exp(x)
+    for e in range(nE):
+        share[e] = chg[e] / ne
+    # d ln n_e / d A(X) at fixed T and P_gas: unknowns (y_j, x, L); rows: elements, charge, particles.
+    # d ln w_e / d A(X) = ln10 (delta_eX - w_X): solve for the drive of each element alone (column
+    # e) and for all together (column nE), then combine.
+    n3 = J + 2
+    ip = 1.0 / tot[r_pos]
+    ineg = 1.0 / tot[r_neg]
+    ipart = 1.0 / part
+    for a in range(n3):
+        for c in range(nE + 1):
+            B3[a, c] = 0.0
+    for a in range(J):
+        for c in range(nv):
+            A3[a, c] = G[a, c] / tot[a]
+        A3[a, J + 1] = G[a, iL] / tot[a] - 1.0
+        B3[a, mol.former_elem[a]] = 1.0
+        B3[a, nE] = 1.0
+    for c in range(nv):
+        A3[J, c] = G[r_neg, c] * ineg - G[r_pos, c] * ip
+        A3[J + 1, c] = G[r_part, c] * ipart
+    A3[J, J + 1] = G[r_neg, iL] * ineg - G[r_pos, iL] * ip
+    A3[J + 1, J + 1] = G[r_part, iL] * ipart
+    for e in range(nE):
+        if elem_former[e] < 0:
+            B3[J, e] = -(gneg[e] * ineg - gpos[e] * ip)
+            B3[J + 1, e] = -gpart[e] * ipart
+    B3[J, nE] = -(G[r_neg, iL] * ineg - G[r_pos, iL] * ip)
+    B3[J + 1, nE] = -G[r_part, iL] * ipart
+    if not _solve_multi(A3, B3, n3, nE + 1):
+        for e in range(nE):
+            dlna[e] = math.nan
+        return
+    for e in range(nE):
+        dlna[e] = LN10 * (B3[J, e] - mix.elem_w[e] * B3[J, nE])
 
 
 @jit
@@ -328,23 +432,36 @@ def work_arrays(mix, mol):
     n_st = mix.stage_chi.size
     M = mol.mol_d0.size
     J = mol.former_elem.size
+    nE = mix.elem_w.size
     return (np.empty(n_st), np.empty(n_st), np.empty(n_st), np.empty(M), np.empty(M), np.empty(J + 3),
-            np.empty((J + 4, J + 3)), np.empty((J + 1, J + 1)), np.empty(J + 1), np.empty(J + 1))
+            np.empty((J + 4, J + 3)), np.empty((J + 1, J + 1)), np.empty(J + 1), np.empty(J + 1),
+            np.empty(nE), np.empty(nE), np.empty(nE), np.empty(nE), np.empty((J + 2, J + 2)),
+            np.empty((J + 2, nE + 1)))
 
 
 @pjit
-def thermo_mol_many(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, out):
-    """:func:`thermo_mol_point` at every point (``out``: (n, N_THERMO)); unsolved points get NaN."""
+def thermo_mol_many(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, out, share, dlna):
+    """:func:`thermo_mol_point` at every point (``out``: (n, N_THERMO); ``share``, ``dlna``: (n, n_elem),
+    or of zero rows for the per-point quantities only); unsolved points get NaN."""
     n = T.size
+    nE = mix.elem_w.size
+    per_element = share.shape[0] > 0
     n_chunks = min(N_CHUNKS, n)
     for c in prange(n_chunks):
         a, b = chunk_bounds(c, n, n_chunks)
         wk = work_arrays(mix, mol)
+        scratch = np.empty(nE)
         for p in range(a, b):
+            sh = share[p] if per_element else scratch
+            dl = dlna[p] if per_element else scratch
             if math.isfinite(x[p]) and math.isfinite(L[p]):
-                thermo_mol_point(T[p], x[p], L[p], lny[p], mix, mol, elem_former, elem_lnm, mean_mass, wk, out[p])
+                thermo_mol_point(T[p], x[p], L[p], lny[p], mix, mol, elem_former, elem_lnm, mean_mass, wk, out[p],
+                                 sh, dl, per_element)
             else:
                 out[p, :] = math.nan
+                if per_element:
+                    share[p, :] = math.nan
+                    dlna[p, :] = math.nan
 
 
 assert N_THERMO == 14

@@ -54,9 +54,8 @@ def compute_tile(task: TileTask) -> dict[str, np.ndarray]:
     if task.thermo:
         for name in THERMO_OUTPUTS:
             out[name] = np.ascontiguousarray(np.broadcast_to(r[name], shape), dtype=np.float64)
-        if not task.molecules:  # the per-element ones are atoms-only so far
-            for key, values in (("electron_donor", r.electron_donors()), ("dlnne_dA", r.abundance_sensitivity())):
-                out[key] = np.stack([np.broadcast_to(v, shape) for v in values.values()])
+        for key, values in (("electron_donor", r.electron_donors()), ("dlnne_dA", r.abundance_sensitivity())):
+            out[key] = np.stack([np.broadcast_to(v, shape) for v in values.values()])
     if task.validity:
         from ..validity import bitmask
 

@@ -130,7 +130,7 @@ class GridSpec:
         ``molecule`` coordinate and a ``molecule_number_density`` cube.
     thermo : bool
         Also store the thermodynamic quantities of :data:`ionbal.quantities.THERMO_OUTPUTS`
-        (per point) and, for the atoms-only solve, the cubes ``electron_donor`` and ``dlnne_dA`` (per element and point:
+        (per point) and the cubes ``electron_donor`` and ``dlnne_dA`` (per element and point:
         the share of the free electrons each element supplies, d ln n_e / d A(X)); atoms only.
     """
 

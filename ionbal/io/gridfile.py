@@ -112,7 +112,7 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
                 chunks=cchunks, units=QUANTITIES["number_density"].unit, compress=deflate,
                 long_name="number density of the molecule (one particle each; its nuclei are in the "
                           "elements' budgets)")
-        if spec.thermo and not molecules:  # per-element quantities: atoms-only solve so far
+        if spec.thermo:
             edims = comp_dims + ("element", "temperature", sv)
             eshape = comp_shape + (len(elements), nt, ns)
             for key, text in (("electron_donor", "share of the free electrons supplied by the element "
@@ -120,7 +120,8 @@ def write_grid_file(path, spec, tiles: Iterable[tuple[Any, Mapping[str, np.ndarr
                               ("dlnne_dA", "d ln n_e / d A(X) at constant temperature and gas pressure "
                                            "[per dex of the element's abundance]")):
                 ds = _variable(f, key, edims, eshape, np.float64, chunks=cchunks, units="1", long_name=text)
-                ds.attrs["comment"] = "elements are labelled by the 'element' coordinate; atoms-only solve"
+                ds.attrs["comment"] = "elements are labelled by the 'element' coordinate" + (
+                    "; molecular ions count for the element of their charged product" if molecules else "")
                 cubes[key] = ds
         for key, ds in cubes.items():
             if key in ("electron_donor", "dlnne_dA"):

@@ -419,8 +419,7 @@ class GridFile:
                      "stored" if self.molecules else "  molecules         none (atoms and atomic ions only)")
         if "gamma1" in self.variables:
             lines.append("  thermodynamics    " + ", ".join(v for v in THERMO_OUTPUTS if v in self.variables)
-                         + ("; electron_donor and dlnne_dA per element" if "electron_donor" in self.variables
-                            else ""))
+                         + "; electron_donor and dlnne_dA per element")
         counts = self.status_counts()
         lines.append("  status            " + ", ".join(f"{k} {v:,}" for k, v in counts.items()))
         vc = self.validity_counts()
