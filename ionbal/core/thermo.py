@@ -55,7 +55,7 @@ import numpy as np
 
 from .config import jit, pjit, prange
 from .constants import EV, K_B, K_B_EV, LN_SAHA_CONST
-from .saha import LN2, closed_log_weights, populated_window, table_position
+from .saha import LN2, closed_log_weights, peak_guess, populated_window, table_position
 from .solver import N_CHUNKS, chunk_bounds
 
 #: per-point outputs of :func:`thermo_many`, in this column order
@@ -68,20 +68,6 @@ N_THERMO = len(THERMO_FIELDS)
 LN10 = math.log(10.0)
 #: ln of the share of the gas below which a stage is left out of the sums (exp(-46) ~ 1e-20)
 GAS_CUT = 46.0
-
-
-@jit
-def peak_guess(C, f, n, x):
-    """First stage position ``k`` of an element with ``C_{k+1} - C_k - x < 0`` (bisection), else ``n - 1``."""
-    lo = 0
-    hi = n - 1
-    while lo < hi:
-        mid = (lo + hi) // 2
-        if C[f + mid + 1] - C[f + mid] - x < 0.0:
-            hi = mid
-        else:
-            lo = mid + 1
-    return lo
 
 
 @jit
