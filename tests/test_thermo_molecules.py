@@ -17,6 +17,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as hs
 
 import ionbal
 from ionbal.thermo import THERMO_FIELDS
@@ -160,3 +162,20 @@ def test_molecular_grid_and_column_store_the_per_point_quantities(tmp_path, caps
     np.testing.assert_allclose(np.asarray(t["gamma1"]), rm.gamma1, rtol=1e-12)
     assert "electron_donor_Na" in t.colnames and "dlnne_dA_Na" in t.colnames
     capsys.readouterr()
+
+
+# -- properties on random molecular states (hypothesis; deadline=None for jitted code) --------------------
+
+@settings(deadline=None, max_examples=40)
+@given(lgT=hs.floats(np.log10(1200.0), np.log10(9000.0)), lgP=hs.floats(-2.0, 8.0))
+def test_molecular_thermo_properties(lgT, lgP):
+    """Stability and the closing identities on random molecular states (common practice): c_v > 0,
+    chi_rho > 0, 1 < Gamma_1 <= 5/3, Gamma_1 = chi_rho / (1 - chi_T nabla_ad), donors sum to 1."""
+    r = ionbal.solve(10.0**lgT, gas_pressure=10.0**lgP, molecules=True)
+    f = {name: float(np.asarray(r[name])) for name in THERMO_FIELDS}
+    assert all(np.isfinite(v) for v in f.values()), f
+    assert f["heat_capacity_v"] > 0 and f["chi_density"] > 0 and f["heat_capacity_p"] > f["heat_capacity_v"]
+    assert 1.0 < f["gamma1"] <= 5.0 / 3.0 + 1e-9
+    assert abs(f["gamma1"] - f["chi_density"] / (1 - f["chi_temperature"] * f["adiabatic_gradient"])) \
+        <= 1e-12 * f["gamma1"]
+    assert abs(sum(float(np.asarray(v)) for v in r.electron_donors().values()) - 1) < 1e-12
