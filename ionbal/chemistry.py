@@ -79,19 +79,16 @@ def solve_chemistry(packed, temperature, *, state: str, value, molecules=True, t
 
 
 def _ln_neutral_fraction(packed, T, x) -> np.ndarray:
-    """ln of the fraction of each element's free atoms in the neutral stage (plain numpy)."""
-    from .core.solver import log_fractions_many
+    """ln of the fraction of each element's free atoms in the neutral stage, (n, n_elements).
 
-    n = T.size
-    out = np.full((n, packed.n_stages), np.nan)
-    ok = np.isfinite(x)
-    if ok.any():
-        sel = np.arange(packed.elem_w.size, dtype=np.int64)
-        lf = np.full((int(ok.sum()), packed.n_stages), np.nan)
-        log_fractions_many(np.ascontiguousarray(T[ok]), np.ascontiguousarray(x[ok]), sel, packed.arrays, lf)
-        out[ok] = lf
-    neutral = packed.elem_first - packed.elem_q0
-    return out[:, neutral]
+    From the joint solve's own Saha sums (:func:`ionbal.core.chem.ln_neutral_fraction_many`);
+    this used to be a pass over the log fractions of every stage, an (n, n_stages) array that
+    took more time than the solve in hot gas.
+    """
+    out = np.empty((T.size, packed.elem_w.size))
+    chem.ln_neutral_fraction_many(np.ascontiguousarray(T, dtype=np.float64),
+                                  np.ascontiguousarray(x, dtype=np.float64), packed.arrays, out)
+    return out
 
 
 def gas_pressure(sol: ChemistrySolution, T) -> np.ndarray:

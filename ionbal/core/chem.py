@@ -50,6 +50,7 @@ from .config import jit, pjit, prange
 from .molecules import MOL_FIELDS, MoleculeArrays  # noqa: F401 - re-exported
 from .constants import K_B
 from .chem_terms import _atomic_sums, _ln_kp, _log_weights, _merit, _solve_linear
+from .saha import charge_power_table, closed_log_weights, element_charge_powers
 from .solver import MODE_ELECTRON_PRESSURE, MODE_GAS_PRESSURE, MODE_NUCLEI_DENSITY, solve_few
 
 __all__ = ["MoleculeArrays", "MOL_FIELDS", "chem_solve_few", "chem_solve_many", "TOL", "MAX_ITER",
@@ -57,7 +58,8 @@ __all__ = ["MoleculeArrays", "MOL_FIELDS", "chem_solve_few", "chem_solve_many", 
 
 #: relative tolerance on every conservation equation
 TOL = 1e-13
-#: accepted when the iteration stagnates at round-off
+#: accepted when the iteration stagnates at round-off (at once when no descent is left, and for
+#: the atoms-only start)
 TOL_STAGNATION = 1e-12
 MAX_ITER = 200
 #: largest change of any unknown (in ln) per Newton step
@@ -356,8 +358,10 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
     if not _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
         return np.nan, np.nan, 0, st.MAX_ITERATIONS
     f0, worst = _merit(r, rows, n)
-    if worst <= tol:
-        return u[J], u[J + 1], 0, st.OK  # molecules below round-off: the atoms-only answer
+    if worst <= max(tol, TOL_STAGNATION):
+        # molecules below round-off: the atoms-only answer (the two codes' Saha sums agree to
+        # ~1e-13, so the atoms-only solution meets the joint equations to round-off, not to tol)
+        return u[J], u[J + 1], 0, st.OK
     best = worst
     # far from the solution (molecules far off their share at the atoms-only start) Newton on the
     # coupled system can stall; nonlinear Gauss-Seidel sweeps first bring every equation near its root
@@ -368,6 +372,7 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
         if not _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
             return np.nan, np.nan, n_sw, st.MAX_ITERATIONS
         f0, worst = _merit(r, rows, n)
+    best = worst
     for k in range(J + 2):
         ut[k] = u[k]
     for it in range(1 + n_sw, max_iter + 1):
@@ -396,12 +401,18 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
                     break
             alpha *= 0.5
         if not ok:
+            if best <= TOL_STAGNATION:
+                # no descent left at round-off: what the loop would accept after max_iter anyway
+                # (hot gas, where the two codes' Saha sums differ by ~1e-13, stopped here after 200)
+                _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm)
+                return u[J], u[J + 1], it, st.OK
             # Newton stalled: more sweeps, then Newton again
             _sweeps(2, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_of, start_of, lnn_mol, atoms,
                     r, Jm)
             if not _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
                 break
             f0, w1 = _merit(r, rows, n)
+            best = w1
             if w1 <= tol:
                 return u[J], u[J + 1], it, st.OK
             continue
@@ -486,3 +497,32 @@ def chem_solve_many(mode, T, value, mix, mol, elem_former, tol, max_iter, out_x,
         chem_solve_few(mode, T[start:stop], value[start:stop], mix, mol, elem_former, tol, max_iter,
                        out_x[start:stop], out_ln_nuc[start:stop], out_atoms[start:stop],
                        out_lnn_mol[start:stop], out_iter[start:stop], out_status[start:stop])
+
+
+@pjit
+def ln_neutral_fraction_many(T, x, mix, out):
+    """ln of the share of each element's free atoms in its neutral stage: ``out`` (n_points, n_elements).
+
+    From the closed-form Saha weights of :func:`.saha.closed_log_weights` (no recurrence, so no
+    round-off accumulated over the stages of heavy elements in hot gas) and each element's
+    populated window (:func:`.saha.element_charge_powers`); NaN where ``x`` is not finite.
+    """
+    n = T.size
+    nE = mix.elem_w.size
+    n_chunks = min(n, N_CHUNKS)
+    q53 = charge_power_table(int(np.max(mix.elem_n)) + 1)
+    for c in prange(n_chunks):
+        start = (c * n) // n_chunks
+        stop = ((c + 1) * n) // n_chunks
+        C = np.empty(mix.stage_chi.size)
+        for p in range(start, stop):
+            if not (math.isfinite(x[p]) and T[p] > 0.0 and T[p] < np.inf):
+                for e in range(nE):
+                    out[p, e] = np.nan
+                continue
+            closed_log_weights(T[p], mix, C)
+            for e in range(nE):
+                f = mix.elem_first[e]
+                kn = -mix.elem_q0[e]
+                q2, qf, pos, m, lns = element_charge_powers(C, f, mix.elem_n[e], mix.elem_q0[e], x[p], q53)
+                out[p, e] = C[f + kn] - kn * x[p] - m - lns
