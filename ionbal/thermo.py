@@ -44,56 +44,36 @@ class ThermoBlock:
     elements: tuple
 
 
-def _molecular(result, per_element: bool) -> ThermoBlock:
-    """The quantities of a molecular result (:mod:`ionbal.core.thermo_mol`)."""
-    from .core.thermo_mol import thermo_mol_many
-
-    s = result._state
-    p = s.packed
-    chem = result._chem
-    T = np.array(s.temperature, dtype=np.float64)
-    x = np.array(s.x, dtype=np.float64)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        L = np.log(s.nn)
-    L = np.ascontiguousarray(np.where(np.isfinite(s.ne), L, np.nan))
-    lny = np.ascontiguousarray(chem.ln_free_neutral_atoms, dtype=np.float64)
-    elem_lnm = 1.5 * np.log(np.array([atomic_mass(int(z)) for z in p.atomic_numbers]) * AMU / M_E)
-    out = np.empty((T.size, N_THERMO))
-    rows = T.size if per_element else 0
-    share = np.empty((rows, p.elem_w.size))
-    dlna = np.empty((rows, p.elem_w.size))
-    pm = chem.molecules
-    thermo_mol_many(T, x, L, lny, p.arrays, pm.arrays, pm.elem_former, elem_lnm, float(p.mean_mass), out, share,
-                    dlna)
-    return ThermoBlock({name: np.ascontiguousarray(out[:, j]) for j, name in enumerate(THERMO_FIELDS)},
-                       share if per_element else None, dlna if per_element else None,
-                       tuple(symbol(int(z)) for z in p.atomic_numbers))
-
-
 def thermodynamics(result, per_element: bool = True) -> ThermoBlock:
     """Evaluate every thermodynamic quantity of a result (one kernel pass over its points).
 
     ``per_element=False`` leaves out the donor shares and d ln n_e/dA(X) (two (n, n_elem) arrays:
     with 83 elements they would outweigh the 14 per-point quantities twelve times).
     """
-    if result.molecules:
-        return _molecular(result, per_element)
     s = result._state
     p = s.packed
     T = np.array(s.temperature, dtype=np.float64)  # writeable copies (results may hold broadcast views)
     x = np.array(s.x, dtype=np.float64)
     with np.errstate(divide="ignore", invalid="ignore"):
-        lnN = np.log(s.nn)
-    lnN = np.where(np.isfinite(s.ne), lnN, np.nan)
-    with np.errstate(divide="ignore"):
-        elem_lnm = (1.5 * np.log(np.array([atomic_mass(int(z)) for z in p.atomic_numbers]) * AMU / M_E)
-                    - np.log(np.asarray(p.elem_w, dtype=np.float64)))
-    n = T.size
-    out = np.empty((n, N_THERMO))
-    rows = n if per_element else 0
+        lnN = np.ascontiguousarray(np.where(np.isfinite(s.ne), np.log(s.nn), np.nan))
+    # 1.5 ln(m_atom / m_e) per element: the constant of its translational entropy
+    lnm = 1.5 * np.log(np.array([atomic_mass(int(z)) for z in p.atomic_numbers]) * AMU / M_E)
+    out = np.empty((T.size, N_THERMO))
+    rows = T.size if per_element else 0
     share = np.empty((rows, p.elem_w.size))
     dlna = np.empty((rows, p.elem_w.size))
-    thermo_many(T, x, np.ascontiguousarray(lnN), p.arrays, elem_lnm, float(p.mean_mass), out, share, dlna)
+    if result.molecules:
+        from .core.thermo_mol import thermo_mol_many
+
+        chem = result._chem
+        lny = np.ascontiguousarray(chem.ln_free_neutral_atoms, dtype=np.float64)
+        pm = chem.molecules
+        thermo_mol_many(T, x, lnN, lny, p.arrays, pm.arrays, pm.elem_former, lnm, float(p.mean_mass), out,
+                        share, dlna)
+    else:
+        with np.errstate(divide="ignore"):
+            elem_lnm = lnm - np.log(np.asarray(p.elem_w, dtype=np.float64))
+        thermo_many(T, x, lnN, p.arrays, elem_lnm, float(p.mean_mass), out, share, dlna)
     return ThermoBlock({name: np.ascontiguousarray(out[:, j]) for j, name in enumerate(THERMO_FIELDS)},
                        share if per_element else None, dlna if per_element else None,
                        tuple(symbol(int(z)) for z in p.atomic_numbers))

@@ -362,7 +362,6 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
         # molecules below round-off: the atoms-only answer (the two codes' Saha sums agree to
         # ~1e-13, so the atoms-only solution meets the joint equations to round-off, not to tol)
         return u[J], u[J + 1], 0, st.OK
-    best = worst
     # far from the solution (molecules far off their share at the atoms-only start) Newton on the
     # coupled system can stall; nonlinear Gauss-Seidel sweeps first bring every equation near its root
     n_sw = 0

@@ -150,6 +150,47 @@ def _solve_linear(A, b, n):
 
 
 @jit
+def _solve_multi(A, B, n, m):
+    """:func:`_solve_linear` for ``m`` right-hand sides at once: ``A[:n, :n] X = B[:n, :m]``, ``B`` becomes ``X``.
+
+    (The Newton step keeps the one-column version: it runs in the solve's inner loop.)
+    """
+    for c in range(n):
+        p = c
+        big = abs(A[c, c])
+        for i in range(c + 1, n):
+            if abs(A[i, c]) > big:
+                big = abs(A[i, c])
+                p = i
+        if not (big > 0.0):
+            return False
+        if p != c:
+            for k in range(n):
+                t = A[c, k]
+                A[c, k] = A[p, k]
+                A[p, k] = t
+            for k in range(m):
+                t = B[c, k]
+                B[c, k] = B[p, k]
+                B[p, k] = t
+        inv = 1.0 / A[c, c]
+        for i in range(c + 1, n):
+            fct = A[i, c] * inv
+            if fct != 0.0:
+                for k in range(c + 1, n):
+                    A[i, k] -= fct * A[c, k]
+                for k in range(m):
+                    B[i, k] -= fct * B[c, k]
+    for c in range(n - 1, -1, -1):
+        for k in range(m):
+            t = B[c, k]
+            for i in range(c + 1, n):
+                t -= A[c, i] * B[i, k]
+            B[c, k] = t / A[c, c]
+    return True
+
+
+@jit
 def _merit(r, rows, n):
     s = 0.0
     worst = 0.0

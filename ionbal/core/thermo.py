@@ -71,6 +71,29 @@ GAS_CUT = 46.0
 
 
 @jit
+def close_relations(out, T, e, s, cv, p_rho, chi_t, chi_r, dxt, dxr):
+    """Fill the :data:`THERMO_FIELDS` of one state from e, s [per gram], c_v, P/rho, chi_T, chi_rho and the
+    n_e sensitivities at fixed rho (``dxt``, ``dxr``), by the standard relations of the module docstring."""
+    cp = cv + p_rho / T * chi_t * chi_t / chi_r
+    g3m1 = p_rho / T * chi_t / cv
+    g1 = chi_r * cp / cv
+    out[0] = e
+    out[1] = e + p_rho
+    out[2] = s
+    out[3] = cv
+    out[4] = cp
+    out[5] = chi_t
+    out[6] = chi_r
+    out[7] = g1
+    out[8] = 1.0 + g3m1
+    out[9] = g3m1 / g1
+    out[10] = dxt - dxr * chi_t / chi_r
+    out[11] = dxr / chi_r
+    out[12] = dxt
+    out[13] = dxr
+
+
+@jit
 def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=False, per_element=True):
     """All :data:`THERMO_FIELDS` of one solved state into ``out``; donor shares and d ln n_e/dA(X).
 
@@ -190,27 +213,10 @@ def thermo_point(T, x, lnN, mix, elem_lnm, mean_mass, C, out, share, dlna, scan=
     chi_r = 1.0 + g * (dxr - 1.0)
     e_nuc = 1.5 * kT * (1.0 + zbar) + EV * e_ion
     de_nuc = 1.5 * kT * (1.0 + zbar) * (1.0 + g * dxt) + EV * (de_sum - cek * dxt)
-    cv = de_nuc / (mean_mass * T)
-    p_rho = (1.0 + zbar) * kT / mean_mass
-    cp = cv + p_rho / T * chi_t * chi_t / chi_r
-    g3m1 = p_rho / T * chi_t / cv
-    g1 = chi_r * cp / cv
     # electrons: s/k = 5/2 + ln(2 / (n_e lambda_e^3)) = 5/2 + base - x
     s_nuc = ent + zbar * (2.5 + base - x)
-    out[0] = e_nuc / mean_mass
-    out[1] = e_nuc / mean_mass + p_rho
-    out[2] = K_B * s_nuc / mean_mass
-    out[3] = cv
-    out[4] = cp
-    out[5] = chi_t
-    out[6] = chi_r
-    out[7] = g1
-    out[8] = 1.0 + g3m1
-    out[9] = g3m1 / g1
-    out[10] = dxt - dxr * chi_t / chi_r
-    out[11] = dxr / chi_r
-    out[12] = dxt
-    out[13] = dxr
+    close_relations(out, T, e_nuc / mean_mass, K_B * s_nuc / mean_mass, de_nuc / (mean_mass * T),
+                    (1.0 + zbar) * kT / mean_mass, chi_t, chi_r, dxt, dxr)
     if not per_element:
         return
     den = 1.0 + zbar + var / zbar

@@ -40,11 +40,12 @@ import math
 
 import numpy as np
 
-from .chem_terms import _ln_kp, _log_weights, _solve_linear
+from .chem_terms import _ln_kp, _log_weights, _solve_multi
 from .config import jit, pjit, prange
 from .constants import EV, K_B, K_B_EV, LN_SAHA_CONST
 from .solver import N_CHUNKS, chunk_bounds
-from .thermo import N_THERMO
+from .saha import table_position
+from .thermo import close_relations
 
 LN10 = math.log(10.0)
 #: stages more than this (in ln) below their element's peak, or below its ions next to the neutral
@@ -57,13 +58,8 @@ def _stage_slopes(T, mix, du, lnu):
     """``du[s] = dlnU_s/dlnT`` (0 outside the table and for constant U) and ``lnu[s] = ln U_s``."""
     lnU = mix.lnU
     n_t = lnU.shape[1]
+    i, w = table_position(T, mix.lt0, mix.dlt, n_t)
     uu = (math.log10(T) - mix.lt0) / mix.dlt
-    i = int(math.floor(uu))
-    if i < 0:
-        i = 0
-    elif i > n_t - 2:
-        i = n_t - 2
-    w = min(max(uu - i, 0.0), 1.0)
     scale = 1.0 / (mix.dlt * LN10) if 0.0 <= uu <= n_t - 1.0 else 0.0
     for s in range(mix.stage_row.size):
         r = mix.stage_row[s]
@@ -108,45 +104,6 @@ def _all_nan(out, share, dlna, per_element):
 
 
 @jit
-def _solve_multi(A, B, n, m):
-    """Solve ``A[:n, :n] X = B[:n, :m]`` in place (Gaussian elimination, partial pivoting); ``B`` becomes ``X``."""
-    for c in range(n):
-        p = c
-        big = abs(A[c, c])
-        for i in range(c + 1, n):
-            if abs(A[i, c]) > big:
-                big = abs(A[i, c])
-                p = i
-        if not (big > 0.0):
-            return False
-        if p != c:
-            for k in range(n):
-                t = A[c, k]
-                A[c, k] = A[p, k]
-                A[p, k] = t
-            for k in range(m):
-                t = B[c, k]
-                B[c, k] = B[p, k]
-                B[p, k] = t
-        inv = 1.0 / A[c, c]
-        for i in range(c + 1, n):
-            fct = A[i, c] * inv
-            if fct != 0.0:
-                for k in range(c + 1, n):
-                    A[i, k] -= fct * A[c, k]
-                for k in range(m):
-                    B[i, k] -= fct * B[c, k]
-    for c in range(n - 1, -1, -1):
-        inv = 1.0 / A[c, c]
-        for k in range(m):
-            t = B[c, k]
-            for i in range(c + 1, n):
-                t -= A[c, i] * B[i, k]
-            B[c, k] = t * inv
-    return True
-
-
-@jit
 def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, wk, out, share, dlna, per_element):
     """All :data:`.thermo.THERMO_FIELDS` of one solved molecular state into ``out``.
 
@@ -157,7 +114,7 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
     (d ln n_e / d A(X) at fixed T and P_gas, from the system with ln N as a third kind of unknown
     and the ideal-gas law as its equation).
     """
-    C, du, lnu, lnkp, gslope, dvec, G, A, b1, b2, chg, gpos, gneg, gpart, A3, B3 = wk
+    C, du, lnu, lnkp, gslope, dvec, G, A, B2, tot, chg, gpos, gneg, gpart, A3, B3 = wk
     J = mol.former_elem.size
     nE = mix.elem_w.size
     M = mol.mol_d0.size
@@ -182,7 +139,8 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
     for a in range(G.shape[0]):
         for c in range(ncol):
             G[a, c] = 0.0
-    tot = np.zeros(J + 4)  # values of the rows of G: element totals, pos, neg, particles, energy [eV cm^-3]
+    for a in range(J + 4):  # values of the rows of G: element totals, pos, neg, particles, energy [eV cm^-3]
+        tot[a] = 0.0
     edot = 0.0             # sum n (eps + kT d2phi) [eV cm^-3]: the explicit part of dE/dlnT
     mu_sum = 0.0           # sum_e N_e mu_e / kT
     # electrons
@@ -339,17 +297,16 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
             scale_r = 1.0 / tot[a]
             for c in range(nv):
                 A[a, c] = G[a, c] * scale_r
-            b1[a] = -G[a, iT] * scale_r
-            b2[a] = 1.0 - G[a, iL] * scale_r
+            B2[a, 0] = -G[a, iT] * scale_r
+            B2[a, 1] = 1.0 - G[a, iL] * scale_r
         else:
             ip = 1.0 / tot[r_pos]
             ineg = 1.0 / tot[r_neg]
             for c in range(nv):
                 A[a, c] = G[r_neg, c] * ineg - G[r_pos, c] * ip
-            b1[a] = -(G[r_neg, iT] * ineg - G[r_pos, iT] * ip)
-            b2[a] = -(G[r_neg, iL] * ineg - G[r_pos, iL] * ip)
-    A2 = A[:nv, :nv].copy()
-    if not (_solve_linear(A, b1, nv) and _solve_linear(A2, b2, nv)):
+            B2[a, 0] = -(G[r_neg, iT] * ineg - G[r_pos, iT] * ip)
+            B2[a, 1] = -(G[r_neg, iL] * ineg - G[r_pos, iL] * ip)
+    if not _solve_multi(A, B2, nv, 2):
         _all_nan(out, share, dlna, per_element)
         return
     part = tot[r_part]
@@ -357,35 +314,17 @@ def thermo_mol_point(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, w
     dpart_l = G[r_part, iL]
     den_t = G[r_en, iT]
     for c in range(nv):
-        dpart_t += G[r_part, c] * b1[c]
-        dpart_l += G[r_part, c] * b2[c]
-        den_t += G[r_en, c] * b1[c]
+        dpart_t += G[r_part, c] * B2[c, 0]
+        dpart_l += G[r_part, c] * B2[c, 1]
+        den_t += G[r_en, c] * B2[c, 0]
     rho = N * mean_mass
     P = part * kT
     chi_t = 1.0 + dpart_t / part
     chi_r = dpart_l / part
     e_v = EV * tot[r_en]
-    cv = EV * (edot + den_t) / (rho * T)
-    cp = cv + P / (rho * T) * chi_t * chi_t / chi_r
-    g3m1 = P / (rho * T) * chi_t / cv
-    g1 = chi_r * cp / cv
     s_v = (e_v + P) / T - K_B * mu_sum
-    dxt = b1[J]
-    dxr = b2[J]
-    out[0] = e_v / rho
-    out[1] = (e_v + P) / rho
-    out[2] = s_v / rho
-    out[3] = cv
-    out[4] = cp
-    out[5] = chi_t
-    out[6] = chi_r
-    out[7] = g1
-    out[8] = 1.0 + g3m1
-    out[9] = g3m1 / g1
-    out[10] = dxt - dxr * chi_t / chi_r
-    out[11] = dxr / chi_r
-    out[12] = dxt
-    out[13] = dxr
+    close_relations(out, T, e_v / rho, s_v / rho, EV * (edot + den_t) / (rho * T), P / rho, chi_t, chi_r,
+                    B2[J, 0], B2[J, 1])
     if not per_element:
         return
     ne = math.exp(x)
@@ -434,7 +373,7 @@ def work_arrays(mix, mol):
     J = mol.former_elem.size
     nE = mix.elem_w.size
     return (np.empty(n_st), np.empty(n_st), np.empty(n_st), np.empty(M), np.empty(M), np.empty(J + 3),
-            np.empty((J + 4, J + 3)), np.empty((J + 1, J + 1)), np.empty(J + 1), np.empty(J + 1),
+            np.empty((J + 4, J + 3)), np.empty((J + 1, J + 1)), np.empty((J + 1, 2)), np.empty(J + 4),
             np.empty(nE), np.empty(nE), np.empty(nE), np.empty(nE), np.empty((J + 2, J + 2)),
             np.empty((J + 2, nE + 1)))
 
@@ -463,5 +402,3 @@ def thermo_mol_many(T, x, L, lny, mix, mol, elem_former, elem_lnm, mean_mass, ou
                     share[p, :] = math.nan
                     dlna[p, :] = math.nan
 
-
-assert N_THERMO == 14
