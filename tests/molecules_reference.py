@@ -4,7 +4,10 @@ Every density is rebuilt from the packed data (partition functions, ionization e
 tabulated equilibrium constants (:func:`ionbal.data.molecules.log10_equilibrium_constant`, numpy):
 Saha stages relative to each element's neutral atom, molecules from their dissociation reactions
 (Barklem & Collet 2016 define the molecular ions as e.g. CO+ -> C+ + O), and the conservation
-laws are evaluated as relative residuals.  :func:`reference_solve` solves them with
+laws are evaluated as relative residuals, in extended precision (``numpy.longdouble``): at 1e6 K a
+heavy element's neutral atom is ~e^-2000 of its nuclei and its highest stage e^+2000 above the neutral,
+so a float64 evaluation of exp(ln n_neutral + ln(n_q/n_neutral)) alone would carry a round-off of
+~2000 eps ~ 5e-13 per term, the size of the residuals it is meant to measure.  :func:`reference_solve` solves them with
 ``scipy.optimize.root`` from a given start.
 """
 
@@ -21,21 +24,30 @@ from ionbal.data.molecules import log10_equilibrium_constant, molecule_table
 K_B = sc.k * 1e7
 K_B_EV = sc.k / sc.e
 SAHA = 1.5 * math.log(2.0 * math.pi * sc.m_e * 1e3 * K_B / (sc.h * 1e7) ** 2)
+LD = np.longdouble
 
 
 def stage_log_ratios(packed, T):
     """Per element: charges q and ln(n_q / n_neutral) at n_e = 1 cm^-3 (numpy, every stage)."""
     lt = math.log10(T)
     grid = packed.lt0 + packed.dlt * np.arange(packed.lnU.shape[1])
+    # every tabulated row at once: the same linear interpolation as np.interp on each row
+    i = int(np.clip(np.searchsorted(grid, lt, side="right") - 1, 0, grid.size - 2))
+    w = (lt - grid[i]) / (grid[i + 1] - grid[i])
+    rows_at_t = packed.lnU[:, i] + w * (packed.lnU[:, i + 1] - packed.lnU[:, i])
+    rows = np.asarray(packed.stage_row)
+    lnu_all = np.where(rows >= 0, rows_at_t[np.maximum(rows, 0)], packed.stage_lnu_const).astype(LD)
+    chi_all = np.asarray(packed.stage_chi).astype(LD)
+    base = np.log(LD(2.0)) + LD(SAHA) + LD(1.5) * np.log(LD(T))
+    beta = LD(1.0) / (LD(K_B_EV) * LD(T))
     out = []
     for e in range(packed.elem_w.size):
         f, n, q0 = int(packed.elem_first[e]), int(packed.elem_n[e]), int(packed.elem_q0[e])
-        lnu = np.array([np.interp(lt, grid, packed.lnU[r]) if r >= 0 else c
-                        for r, c in zip(packed.stage_row[f:f + n], packed.stage_lnu_const[f:f + n])])
-        steps = math.log(2.0) + SAHA + 1.5 * math.log(T) + np.diff(lnu) - packed.stage_chi[f:f + n - 1] / (K_B_EV * T)
-        C = np.concatenate([[0.0], np.cumsum(steps)])
+        lnu = lnu_all[f:f + n]
+        steps = base + np.diff(lnu) - chi_all[f:f + n - 1] * beta
+        C = np.concatenate([[LD(0.0)], np.cumsum(steps)])
         kn = -q0
-        out.append((np.arange(n) - kn, C - C[kn]))
+        out.append(((np.arange(n) - kn).astype(LD), C - C[kn]))
     return out
 
 
@@ -44,7 +56,7 @@ class Reference:
 
     def __init__(self, packed, pm, T):
         self.packed, self.pm, self.T = packed, pm, T
-        self.kT = K_B * T
+        self.kT = LD(K_B) * LD(T)
         self.stages = stage_log_ratios(packed, T)
         tab = molecule_table()
         zs = [int(z) for z in packed.atomic_numbers]
@@ -53,42 +65,43 @@ class Reference:
         self.mols = []
         for m in pm.molecules:
             i = tab.molecules.index(m)
-            lnkp = math.log(10.0) * float(log10_equilibrium_constant(m, T))
+            lnkp = np.log(LD(10.0)) * LD(float(log10_equilibrium_constant(m, T)))
             comp = [(self.e_of_z[z], c) for z, c in m.composition]
             ion = None
             if tab.ion_z[i]:
                 e = self.e_of_z[int(tab.ion_z[i])]
                 q, lr = self.stages[e]
-                ion = float(lr[list(q).index(int(tab.ion_q[i]))])
-            const = -lnkp + (m.n_atoms - 1) * math.log(self.kT) + (ion or 0.0)
+                ion = lr[list(q).index(int(tab.ion_q[i]))]
+            const = -lnkp + (m.n_atoms - 1) * np.log(self.kT) + (ion if ion is not None else LD(0.0))
             self.mols.append((comp, m.charge, const))
 
     def densities(self, y_formers, x, L):
         """Free atoms per element (all stages), stage densities, molecule densities."""
         p = self.packed
-        N = math.exp(L)
-        lnn0 = np.empty(p.elem_w.size)
+        y_formers, x, L = np.asarray(y_formers, dtype=LD), LD(x), LD(L)
+        N = np.exp(L)
+        lnn0 = np.empty(p.elem_w.size, dtype=LD)
         fset = dict(zip(self.formers, range(len(self.formers))))
         for e, (q, lr) in enumerate(self.stages):
             if e in fset:
                 lnn0[e] = y_formers[fset[e]]
             else:
                 t = lr - q * x
-                lnn0[e] = math.log(p.elem_w[e] * N) - (t.max() + math.log(np.exp(t - t.max()).sum()))
+                lnn0[e] = np.log(LD(p.elem_w[e]) * N) - (t.max() + np.log(np.exp(t - t.max()).sum()))
         stage = [np.exp(lnn0[e] + lr - q * x) for e, (q, lr) in enumerate(self.stages)]
-        lnm = np.array([sum(c * lnn0[e] for e, c in comp) + const - qm * x for comp, qm, const in self.mols])
+        lnm = np.array([sum(c * lnn0[e] for e, c in comp) + const - qm * x for comp, qm, const in self.mols], dtype=LD)
         return lnn0, stage, np.exp(lnm)
 
     def residuals(self, y_formers, x, L, mode, value):
         """Relative residuals: every element, charge, and the state equation."""
         p = self.packed
         lnn0, stage, nm = self.densities(y_formers, x, L)
-        N = math.exp(L)
-        budget = np.array([s.sum() for s in stage])
+        N = np.exp(LD(L))
+        budget = np.array([s.sum() for s in stage], dtype=LD)
         for (comp, qm, const), n in zip(self.mols, nm):
             for e, c in comp:
                 budget[e] += c * n
-        r_el = budget / (p.elem_w * N) - 1.0
+        r_el = budget / (p.elem_w.astype(LD) * N) - 1.0
         pos = sum((np.where(q > 0, q, 0) * s).sum() for (q, _), s in zip(self.stages, stage))
         neg = sum((np.where(q < 0, -q, 0) * s).sum() for (q, _), s in zip(self.stages, stage))
         for (comp, qm, const), n in zip(self.mols, nm):
@@ -96,16 +109,16 @@ class Reference:
                 pos += qm * n
             elif qm < 0:
                 neg -= qm * n
-        ne = math.exp(x)
+        ne = np.exp(LD(x))
         r_q = (ne + neg) / pos - 1.0
         particles = sum(s.sum() for s in stage) + nm.sum() + ne
         if mode == "gas_pressure":
-            r_s = particles * self.kT / value - 1.0
+            r_s = particles * self.kT / LD(value) - 1.0
         elif mode == "nuclei_density":
-            r_s = N / value - 1.0
+            r_s = N / LD(value) - 1.0
         else:
-            r_s = ne * self.kT / value - 1.0
-        return r_el, r_q, r_s
+            r_s = ne * self.kT / LD(value) - 1.0
+        return r_el.astype(float), float(r_q), float(r_s)
 
 
 def reference_solve(packed, pm, T, mode, value, y0, x0, L0):

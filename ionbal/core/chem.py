@@ -29,10 +29,14 @@ particle), or fixed ``N`` or fixed ``n_e`` (then ``x`` or ``L`` drop out).
 Newton's method on these log residuals: the Jacobian is nonsingular, so the
 Newton direction always lowers ``|r|^2``; steps are capped (``STEP_CAP`` in ln)
 and backtracked until ``|r|^2`` falls.  The start is the atoms-only solution
-(:func:`ionbal.core.solver.solve_few`) with ``y_j`` from it; where molecules
-hold less than round-off of every budget there, that start already satisfies
-every equation and is returned unchanged (hot gas costs one extra residual
-evaluation and nothing jumps).
+(:func:`ionbal.core.solver.solve_few`) with ``y_j`` from it; where it already
+meets every joint equation to ``tol`` it is returned unchanged (nothing jumps
+where molecules vanish).  Far from the root (worst log residual above
+``SWEEP_UNTIL``) nonlinear Gauss-Seidel sweeps come first: each element alone,
+then the ``N_HUBS`` most abundant formers together (C and O locked in CO
+converge slowly one by one), then charge and the state equation
+(:mod:`ionbal.core.chem_relax`).  The Newton matrix is eliminated rarest
+element first, which leaves it sparse.
 
 Equilibrium constants come from a table uniform in ``log10 T``; the kernel
 interpolates the smooth ``g = ln Kp + D0/kT`` linearly and, past the table end,
@@ -50,6 +54,7 @@ from .config import jit, pjit, prange
 from .molecules import MOL_FIELDS, MoleculeArrays  # noqa: F401 - re-exported
 from .constants import K_B
 from .chem_terms import _atomic_sums, _ln_kp, _log_weights, _merit, _solve_linear
+from .chem_relax import STEP_CAP, N_HUBS, _element_1d, _hub_block, elimination_order, former_molecules
 from .saha import charge_power_table, closed_log_weights, element_charge_powers
 from .solver import MODE_ELECTRON_PRESSURE, MODE_GAS_PRESSURE, MODE_NUCLEI_DENSITY, solve_few
 
@@ -62,9 +67,9 @@ TOL = 1e-13
 #: the atoms-only start)
 TOL_STAGNATION = 1e-12
 MAX_ITER = 200
-#: largest change of any unknown (in ln) per Newton step
-STEP_CAP = 4.0
 N_CHUNKS = 256
+#: nonlinear Gauss-Seidel sweeps until the worst log residual is below this, then Newton
+SWEEP_UNTIL = 0.2
 
 
 @jit
@@ -198,59 +203,28 @@ def _residual(u, want_jac, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, at
 
 
 @jit
-def _element_1d(j, u, C, phi, mix, mol, mol_of, cnt_of, start_of, lnA):
-    """Solve element ``j``'s conservation for ``y_j`` with every other unknown fixed.
-
-    ``ln(sum_k exp(nu_k y + c_k)) = ln w_j + L`` is convex and increasing in ``y``, so Newton
-    converges from either side (at most one overshoot, then monotonically).
-    """
-    J = mol.former_elem.size
-    e = mol.former_elem[j]
-    x = u[J]
-    target = math.log(mix.elem_w[e]) + u[J + 1]
-    y = u[j]
-    for _ in range(60):
-        # terms: atomic (nu = 1) and every molecule holding j
-        m0 = y + lnA
-        for k in range(start_of[j], start_of[j + 1]):
-            m = mol_of[k]
-            t = phi[m] - mol.mol_charge[m] * x
-            for c in range(3):
-                jj = mol.mol_comp[m, c]
-                if jj >= 0:
-                    t += mol.mol_count[m, c] * u[jj] if jj != j else mol.mol_count[m, c] * y
-            if t > m0:
-                m0 = t
-        s0 = math.exp(y + lnA - m0)
-        s1 = s0
-        for k in range(start_of[j], start_of[j + 1]):
-            m = mol_of[k]
-            t = phi[m] - mol.mol_charge[m] * x
-            for c in range(3):
-                jj = mol.mol_comp[m, c]
-                if jj >= 0:
-                    t += mol.mol_count[m, c] * u[jj] if jj != j else mol.mol_count[m, c] * y
-            w = cnt_of[k] * math.exp(t - m0)
-            s0 += w
-            s1 += cnt_of[k] * w
-        f = m0 + math.log(s0) - target
-        step = f / (s1 / s0)
-        y -= step
-        if abs(step) <= 1e-15 * max(1.0, abs(y)):
-            break
-    u[j] = y
-
-
-@jit
 def _sweeps(n_sweeps, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_of, start_of, lnn_mol, atoms,
-            r, Jm):
-    """Nonlinear Gauss-Seidel: every element equation in turn, then charge, then the state equation."""
+            r, Jm, order):
+    """Nonlinear Gauss-Seidel: every element equation in turn, the most abundant formers once more
+    together (:func:`_hub_block`), then charge, then the state equation."""
     J = mol.former_elem.size
+    K = min(J, N_HUBS)
+    hubs = order[J - K:]
+    hub_of = np.full(J, -1, dtype=np.int64)
+    for a in range(K):
+        hub_of[hubs[a]] = a
+    G = np.empty((K, K))
+    g = np.empty(K)
+    dk = np.empty(K)
+    y0 = np.empty(K)
+    nz = np.empty(K, dtype=np.int64)
     for _ in range(n_sweeps):
         for j in range(J):
             e = mol.former_elem[j]
             lnA, p1, p2, n1, n2 = _atomic_sums(C, mix.elem_first[e], mix.elem_n[e], mix.elem_q0[e], u[J])
             _element_1d(j, u, C, phi, mix, mol, mol_of, cnt_of, start_of, lnA)
+        if K > 1:
+            _hub_block(hubs, K, u, C, phi, mix, mol, mol_of, cnt_of, start_of, hub_of, G, g, dk, y0, nz)
         for _k in range(3):
             if not _residual(u, True, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
                 return
@@ -281,35 +255,11 @@ def _sweeps(n_sweeps, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_o
 
 
 @jit
-def former_molecules(mol):
-    """CSR lists of the molecules of every former: ``(mol_of, cnt_of, start_of)``."""
-    J = mol.former_elem.size
-    M = mol.mol_d0.size
-    start = np.zeros(J + 1, dtype=np.int64)
-    for m in range(M):
-        for c in range(3):
-            j = mol.mol_comp[m, c]
-            if j >= 0:
-                start[j + 1] += 1
-    for j in range(J):
-        start[j + 1] += start[j]
-    fill = start[:J].copy()
-    mol_of = np.empty(start[J], dtype=np.int64)
-    cnt_of = np.empty(start[J], dtype=np.int64)
-    for m in range(M):
-        for c in range(3):
-            j = mol.mol_comp[m, c]
-            if j >= 0:
-                mol_of[fill[j]] = m
-                cnt_of[fill[j]] = mol.mol_count[m, c]
-                fill[j] += 1
-    return mol_of, cnt_of, start
-
-
-@jit
 def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, phi, lnn_mol, atoms,
-               u, ut, r, Jm, A, d, rows, cols, mol_of, cnt_of, start_of):
+               u, ut, r, Jm, A, d, rows, cols, mol_of, cnt_of, start_of, order):
     """Solve one state from the atoms-only start ``(x0, L0)``.  Returns ``(x, L, iterations, status)``.
+
+    ``order`` is the elimination order of the former unknowns (:func:`elimination_order`).
 
     Fills ``lnn_mol`` (ln n of every molecule) and ``atoms`` (free-atom density of every
     element, all its atomic stages together) at the solution.
@@ -342,8 +292,8 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
     # active rows and columns
     n = 0
     for j in range(J):
-        rows[n] = j
-        cols[n] = j
+        rows[n] = order[j]
+        cols[n] = order[j]
         n += 1
     rows[n] = J
     if mode == MODE_ELECTRON_PRESSURE:
@@ -358,20 +308,21 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
     if not _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
         return np.nan, np.nan, 0, st.MAX_ITERATIONS
     f0, worst = _merit(r, rows, n)
-    if worst <= max(tol, TOL_STAGNATION):
-        # molecules below round-off: the atoms-only answer (the two codes' Saha sums agree to
-        # ~1e-13, so the atoms-only solution meets the joint equations to round-off, not to tol)
+    if worst <= tol:
+        # molecules below round-off: the atoms-only answer
         return u[J], u[J + 1], 0, st.OK
     # far from the solution (molecules far off their share at the atoms-only start) Newton on the
     # coupled system can stall; nonlinear Gauss-Seidel sweeps first bring every equation near its root
     n_sw = 0
-    while worst > 1e-2 and n_sw < 60:
-        _sweeps(2, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_of, start_of, lnn_mol, atoms, r, Jm)
-        n_sw += 2
+    while worst > SWEEP_UNTIL and n_sw < 60:
+        _sweeps(1, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_of, start_of, lnn_mol, atoms, r, Jm,
+                order)
+        n_sw += 1
         if not _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
             return np.nan, np.nan, n_sw, st.MAX_ITERATIONS
         f0, worst = _merit(r, rows, n)
     best = worst
+    nz = np.empty(J + 2, dtype=np.int64)
     for k in range(J + 2):
         ut[k] = u[k]
     for it in range(1 + n_sw, max_iter + 1):
@@ -380,7 +331,7 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
             d[a] = -r[rows[a]]
             for b in range(n):
                 A[a, b] = Jm[rows[a], cols[b]]
-        if not _solve_linear(A, d, n):
+        if not _solve_linear(A, d, n, nz):
             break
         big = 0.0
         for a in range(n):
@@ -407,7 +358,7 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
                 return u[J], u[J + 1], it, st.OK
             # Newton stalled: more sweeps, then Newton again
             _sweeps(2, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_of, start_of, lnn_mol, atoms,
-                    r, Jm)
+                    r, Jm, order)
             if not _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
                 break
             f0, w1 = _merit(r, rows, n)
@@ -455,6 +406,7 @@ def chem_solve_few(mode, T, value, mix, mol, elem_former, tol, max_iter, out_x, 
     s0 = np.empty(npt, dtype=np.int64)
     guess = np.full(npt, np.nan)
     mol_of, cnt_of, start_of = former_molecules(mol)
+    order = elimination_order(mix, mol)
     solve_few(mode, T, value, guess, mix, 1e-13, 200, x0, L0, it0, s0)
     for p in range(npt):
         code = s0[p]
@@ -473,7 +425,7 @@ def chem_solve_few(mode, T, value, mix, mol, elem_former, tol, max_iter, out_x, 
             continue
         x, L, it, code = chem_point(mode, T[p], value[p], mix, mol, elem_former, tol, max_iter, x0[p], L0[p],
                                     C, phi, lnn, atoms, u, ut, r, Jm, A, d, rows, cols, mol_of, cnt_of,
-                                    start_of)
+                                    start_of, order)
         out_x[p] = x
         out_ln_nuc[p] = L
         out_iter[p] = it0[p] + it

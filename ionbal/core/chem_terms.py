@@ -115,8 +115,11 @@ def _ln_kp(T, mol, out):
 
 
 @jit
-def _solve_linear(A, b, n):
-    """Solve ``A[:n, :n] d = b[:n]`` in place (Gaussian elimination, partial pivoting); ``b`` becomes ``d``."""
+def _solve_linear(A, b, n, nz):
+    """Solve ``A[:n, :n] d = b[:n]`` in place (Gaussian elimination, partial pivoting); ``b`` becomes ``d``.
+
+    ``nz`` is integer work space of length >= n.
+    """
     for c in range(n):
         p = c
         big = abs(A[c, c])
@@ -135,10 +138,17 @@ def _solve_linear(A, b, n):
             b[c] = b[p]
             b[p] = t
         inv = 1.0 / A[c, c]
+        # the pivot row's non-zero columns once (the Newton matrix of the molecular solve is sparse)
+        m = 0
+        for k in range(c + 1, n):
+            if A[c, k] != 0.0:
+                nz[m] = k
+                m += 1
         for i in range(c + 1, n):
             fct = A[i, c] * inv
             if fct != 0.0:
-                for k in range(c + 1, n):
+                for t in range(m):
+                    k = nz[t]
                     A[i, k] -= fct * A[c, k]
                 b[i] -= fct * b[c]
     for c in range(n - 1, -1, -1):
