@@ -54,7 +54,7 @@ from .config import jit, pjit, prange
 from .molecules import MOL_FIELDS, MoleculeArrays  # noqa: F401 - re-exported
 from .constants import K_B
 from .chem_terms import _atomic_sums, _ln_kp, _log_weights, _merit, _solve_linear
-from .chem_relax import STEP_CAP, N_HUBS, _element_1d, _hub_block, elimination_order, former_molecules
+from .chem_relax import STEP_CAP, _element_1d, _hub_block, relaxation_plan
 from .saha import charge_power_table, closed_log_weights, element_charge_powers
 from .solver import MODE_ELECTRON_PRESSURE, MODE_GAS_PRESSURE, MODE_NUCLEI_DENSITY, solve_few
 
@@ -203,21 +203,13 @@ def _residual(u, want_jac, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, at
 
 
 @jit
-def _sweeps(n_sweeps, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_of, start_of, lnn_mol, atoms,
-            r, Jm, order):
+def _sweeps(n_sweeps, mode, lnV, u, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm, plan):
     """Nonlinear Gauss-Seidel: every element equation in turn, the most abundant formers once more
-    together (:func:`_hub_block`), then charge, then the state equation."""
+    together (:func:`_hub_block`), then charge, then the state equation.  ``plan``: see
+    :func:`relaxation_plan`."""
     J = mol.former_elem.size
-    K = min(J, N_HUBS)
-    hubs = order[J - K:]
-    hub_of = np.full(J, -1, dtype=np.int64)
-    for a in range(K):
-        hub_of[hubs[a]] = a
-    G = np.empty((K, K))
-    g = np.empty(K)
-    dk = np.empty(K)
-    y0 = np.empty(K)
-    nz = np.empty(K, dtype=np.int64)
+    mol_of, cnt_of, start_of, order, hubs, hub_of, G, g, dk, y0, nz = plan
+    K = hubs.size
     for _ in range(n_sweeps):
         for j in range(J):
             e = mol.former_elem[j]
@@ -256,15 +248,17 @@ def _sweeps(n_sweeps, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_o
 
 @jit
 def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, phi, lnn_mol, atoms,
-               u, ut, r, Jm, A, d, rows, cols, mol_of, cnt_of, start_of, order):
+               u, ut, r, Jm, A, d, rows, cols, nz, plan):
     """Solve one state from the atoms-only start ``(x0, L0)``.  Returns ``(x, L, iterations, status)``.
 
-    ``order`` is the elimination order of the former unknowns (:func:`elimination_order`).
+    ``plan`` is the mixture's :func:`relaxation_plan` (the elimination order of the former unknowns
+    among it); ``nz``: integer work space of length J + 2.
 
     Fills ``lnn_mol`` (ln n of every molecule) and ``atoms`` (free-atom density of every
     element, all its atomic stages together) at the solution.
     """
     J = mol.former_elem.size
+    order = plan[3]
     kT = K_B * T
     lnkT = math.log(kT)
     _log_weights(T, mix, C)
@@ -315,14 +309,12 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
     # coupled system can stall; nonlinear Gauss-Seidel sweeps first bring every equation near its root
     n_sw = 0
     while worst > SWEEP_UNTIL and n_sw < 60:
-        _sweeps(1, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_of, start_of, lnn_mol, atoms, r, Jm,
-                order)
+        _sweeps(1, mode, lnV, u, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm, plan)
         n_sw += 1
         if not _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
             return np.nan, np.nan, n_sw, st.MAX_ITERATIONS
         f0, worst = _merit(r, rows, n)
     best = worst
-    nz = np.empty(J + 2, dtype=np.int64)
     for k in range(J + 2):
         ut[k] = u[k]
     for it in range(1 + n_sw, max_iter + 1):
@@ -357,8 +349,7 @@ def chem_point(mode, T, value, mix, mol, elem_former, tol, max_iter, x0, L0, C, 
                 _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm)
                 return u[J], u[J + 1], it, st.OK
             # Newton stalled: more sweeps, then Newton again
-            _sweeps(2, mode, lnV, u, C, phi, mix, mol, elem_former, mol_of, cnt_of, start_of, lnn_mol, atoms,
-                    r, Jm, order)
+            _sweeps(2, mode, lnV, u, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm, plan)
             if not _residual(u, False, mode, lnV, C, phi, mix, mol, elem_former, lnn_mol, atoms, r, Jm):
                 break
             f0, w1 = _merit(r, rows, n)
@@ -405,8 +396,8 @@ def chem_solve_few(mode, T, value, mix, mol, elem_former, tol, max_iter, out_x, 
     it0 = np.empty(npt, dtype=np.int64)
     s0 = np.empty(npt, dtype=np.int64)
     guess = np.full(npt, np.nan)
-    mol_of, cnt_of, start_of = former_molecules(mol)
-    order = elimination_order(mix, mol)
+    nz = np.empty(J + 2, dtype=np.int64)
+    plan = relaxation_plan(mix, mol)
     solve_few(mode, T, value, guess, mix, 1e-13, 200, x0, L0, it0, s0)
     for p in range(npt):
         code = s0[p]
@@ -424,8 +415,7 @@ def chem_solve_few(mode, T, value, mix, mol, elem_former, tol, max_iter, out_x, 
                 out_lnn_mol[p, m] = np.nan
             continue
         x, L, it, code = chem_point(mode, T[p], value[p], mix, mol, elem_former, tol, max_iter, x0[p], L0[p],
-                                    C, phi, lnn, atoms, u, ut, r, Jm, A, d, rows, cols, mol_of, cnt_of,
-                                    start_of, order)
+                                    C, phi, lnn, atoms, u, ut, r, Jm, A, d, rows, cols, nz, plan)
         out_x[p] = x
         out_ln_nuc[p] = L
         out_iter[p] = it0[p] + it

@@ -193,3 +193,24 @@ def elimination_order(mix, mol):
     for j in range(J):
         w[j] = mix.elem_w[mol.former_elem[j]]
     return np.argsort(w, kind="mergesort")
+
+
+@jit
+def relaxation_plan(mix, mol):
+    """Everything the sweeps need that depends only on the mixture, built once per chunk.
+
+    ``(mol_of, cnt_of, start_of, order, hubs, hub_of, G, g, d, y0, nz)``: the CSR lists of
+    :func:`former_molecules`, the :func:`elimination_order`, the ``K = min(J, N_HUBS)`` most abundant
+    formers ``hubs`` with their positions ``hub_of`` (-1 for the others), and the work space of
+    :func:`_hub_block`.
+    """
+    J = mol.former_elem.size
+    mol_of, cnt_of, start_of = former_molecules(mol)
+    order = elimination_order(mix, mol)
+    K = min(J, N_HUBS)
+    hubs = order[J - K:].copy()
+    hub_of = np.full(J, -1, dtype=np.int64)
+    for a in range(K):
+        hub_of[hubs[a]] = a
+    return (mol_of, cnt_of, start_of, order, hubs, hub_of, np.empty((K, K)), np.empty(K), np.empty(K),
+            np.empty(K), np.empty(K, dtype=np.int64))

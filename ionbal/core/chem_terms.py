@@ -115,25 +115,36 @@ def _ln_kp(T, mol, out):
 
 
 @jit
+def _pivot(A, c, n):
+    """Partial pivoting of column ``c`` of ``A[:n, :n]``: the row of largest ``|A[i, c]|`` (``i >= c``)
+    is swapped into row ``c``; returns its former index, or -1 when the column is zero there."""
+    p = c
+    big = abs(A[c, c])
+    for i in range(c + 1, n):
+        if abs(A[i, c]) > big:
+            big = abs(A[i, c])
+            p = i
+    if not (big > 0.0):
+        return -1
+    if p != c:
+        for k in range(n):
+            t = A[c, k]
+            A[c, k] = A[p, k]
+            A[p, k] = t
+    return p
+
+
+@jit
 def _solve_linear(A, b, n, nz):
     """Solve ``A[:n, :n] d = b[:n]`` in place (Gaussian elimination, partial pivoting); ``b`` becomes ``d``.
 
     ``nz`` is integer work space of length >= n.
     """
     for c in range(n):
-        p = c
-        big = abs(A[c, c])
-        for i in range(c + 1, n):
-            if abs(A[i, c]) > big:
-                big = abs(A[i, c])
-                p = i
-        if not (big > 0.0):
+        p = _pivot(A, c, n)
+        if p < 0:
             return False
         if p != c:
-            for k in range(n):
-                t = A[c, k]
-                A[c, k] = A[p, k]
-                A[p, k] = t
             t = b[c]
             b[c] = b[p]
             b[p] = t
@@ -166,19 +177,10 @@ def _solve_multi(A, B, n, m):
     (The Newton step keeps the one-column version: it runs in the solve's inner loop.)
     """
     for c in range(n):
-        p = c
-        big = abs(A[c, c])
-        for i in range(c + 1, n):
-            if abs(A[i, c]) > big:
-                big = abs(A[i, c])
-                p = i
-        if not (big > 0.0):
+        p = _pivot(A, c, n)
+        if p < 0:
             return False
         if p != c:
-            for k in range(n):
-                t = A[c, k]
-                A[c, k] = A[p, k]
-                A[p, k] = t
             for k in range(m):
                 t = B[c, k]
                 B[c, k] = B[p, k]
